@@ -293,7 +293,7 @@ public final class DemoTrainer {
           "%s: done at step %d (epoch %d of %d): %d steps in %.2f s (%.0f steps/s)%s",
           NAME, t.step, Math.min(t.epochAt(t.cursor - 1), o.epochs), o.epochs, steps, seconds,
           seconds > 0 ? steps / seconds : 0.0,
-          bestStep < 0 ? "" : String.format(Locale.ROOT, "; best val_loss %.4f at step %d",
+          bestStep < 0 ? "" : String.format(Locale.ROOT, "; best val_loss %.6g at step %d",
               best, bestStep)));
       return 0;
     }
