@@ -9,6 +9,9 @@ import java.io.PrintStream;
 import java.io.UncheckedIOException;
 import java.nio.charset.StandardCharsets;
 import java.nio.file.Files;
+import java.nio.file.AccessDeniedException;
+import java.nio.file.FileAlreadyExistsException;
+import java.nio.file.FileSystemException;
 import java.nio.file.NoSuchFileException;
 import java.nio.file.Path;
 import java.util.Arrays;
@@ -98,9 +101,6 @@ public final class DemoTrainer {
     } catch (Checkpoint.FormatException e) {
       err.println(NAME + ": cannot resume: " + e.getMessage());
       return 1;
-    } catch (NoSuchFileException e) {
-      err.println(NAME + ": no such file: " + e.getFile());
-      return 1;
     } catch (IOException e) {
       err.println(NAME + ": I/O failure: " + describe(e));
       return 1;
@@ -114,7 +114,24 @@ public final class DemoTrainer {
     }
   }
 
-  private static String describe(IOException e) {
+  /** One line for an I/O failure: file system exceptions often carry only a path as message. */
+  static String describe(IOException e) {
+    if (e instanceof FileSystemException f) {
+      return f.getFile() + (f.getOtherFile() == null ? "" : " -> " + f.getOtherFile()) + ": "
+          + reason(e);
+    }
+    return reason(e);
+  }
+
+  /** The cause without the path. */
+  static String reason(IOException e) {
+    if (e instanceof FileSystemException f) {
+      return f.getReason() != null ? f.getReason()
+          : f instanceof NoSuchFileException ? "no such file or directory"
+          : f instanceof AccessDeniedException ? "permission denied"
+          : f instanceof FileAlreadyExistsException ? "exists and is not a directory"
+          : f.getClass().getSimpleName();
+    }
     return e.getMessage() == null ? e.getClass().getSimpleName() : e.getMessage();
   }
 
@@ -237,7 +254,11 @@ public final class DemoTrainer {
     private int train(Training t, Dataset.Split split, Dataset all)
         throws IOException, InterruptedException {
       Path dir = Path.of(o.checkpointDir);
-      Files.createDirectories(dir);
+      try {
+        Files.createDirectories(dir);
+      } catch (IOException e) {
+        throw new IOException("cannot create checkpoint directory " + dir + ": " + reason(e), e);
+      }
       ControlFile control = controlFile();
       if (control != null && resumed != null && o.given.contains("lr")) {
         ControlFile.Instruction standing = control.current();

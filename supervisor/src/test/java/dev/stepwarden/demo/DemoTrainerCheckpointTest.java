@@ -117,7 +117,8 @@ class DemoTrainerCheckpointTest {
     TrainerRun run = TrainerRun.of("--epochs", "1", "--checkpoint-dir", file.resolve("ckpt").toString());
 
     assertThat(run.exitCode).isEqualTo(1);
-    assertThat(run.stderr).startsWith("demo trainer: I/O failure").doesNotContain("\tat ");
+    assertThat(run.stderr).startsWith("demo trainer: I/O failure: cannot create checkpoint directory")
+        .contains("not-a-dir").doesNotContain("\tat ");
   }
 
   @Test
