@@ -1,0 +1,31 @@
+package dev.stepwarden.cli;
+
+/** The process exit codes of every stepwarden command (listed in {@code --help}). */
+public final class ExitCodes {
+  private ExitCodes() {}
+
+  /** The trainer finished normally (or the command did what was asked). */
+  public static final int OK = 0;
+  /** The supervisor itself failed. */
+  public static final int INTERNAL = 1;
+  /** The command line was wrong. */
+  public static final int USAGE = 2;
+  /** A guard stopped the run early: a success; the best checkpoint is named. */
+  public static final int STOPPED_EARLY = 3;
+  /** A limit ran out: rewinds, crash restarts, or the rate floor with divergence. */
+  public static final int GAVE_UP = 4;
+  /** Interrupted by SIGINT (SIGTERM gives 143). */
+  public static final int INTERRUPTED = 130;
+  /** The guard file (or another configuration) is invalid. */
+  public static final int CONFIG = 78;
+
+  static final String TABLE = String.join("%n",
+      "Exit codes:",
+      "  0   the trainer finished normally",
+      "  3   stopped early by a guard (a success: the best checkpoint is named)",
+      "  4   gave up (a limit ran out: rewinds, crash restarts, floor reached while diverging)",
+      "  2   usage error",
+      "  78  configuration error (the guard file names the line and column)",
+      "  1   internal error",
+      "  130 interrupted by SIGINT (143 for SIGTERM); the trainer's whole tree is stopped first");
+}

@@ -1,0 +1,77 @@
+package dev.stepwarden.control;
+
+import java.io.IOException;
+import java.nio.ByteBuffer;
+import java.nio.channels.FileChannel;
+import java.nio.charset.StandardCharsets;
+import java.nio.file.AtomicMoveNotSupportedException;
+import java.nio.file.Files;
+import java.nio.file.Path;
+import java.nio.file.StandardCopyOption;
+import java.nio.file.StandardOpenOption;
+import java.util.LinkedHashMap;
+import java.util.Map;
+import tools.jackson.databind.json.JsonMapper;
+
+/**
+ * The control file: how a new learning rate reaches a trainer that listens.
+ *
+ * <p>Protocol (ours): the trainer finds the path in {@code STEPWARDEN_CONTROL} and polls its
+ * modification time. The supervisor never edits the file in place: it writes a sibling temporary
+ * file, forces it to disk and renames it over the old one, so a trainer reads either the old or
+ * the new revision, never half of one. Content:
+ * {@code {"revision": 4, "learning_rate": 0.025, "guard": "flat-validation", "at_step": 41200}}.
+ * The trainer confirms by reporting the new rate or {@code "applied_revision": 4} in its output.
+ */
+public final class ControlFile {
+  private static final JsonMapper JSON = JsonMapper.builder().build();
+
+  private final Path path;
+  private long revision;
+
+  public ControlFile(Path path, long revision) {
+    this.path = path;
+    this.revision = revision;
+  }
+
+  public Path path() {
+    return path;
+  }
+
+  /** The last revision written (0 before the first). */
+  public synchronized long revision() {
+    return revision;
+  }
+
+  /** Publishes a new rate atomically; returns its revision number. */
+  public synchronized long publish(double learningRate, String guard, long atStep)
+      throws IOException {
+    long next = revision + 1;
+    Map<String, Object> body = new LinkedHashMap<>();
+    body.put("revision", next);
+    body.put("learning_rate", learningRate);
+    body.put("guard", guard);
+    body.put("at_step", atStep);
+    write(JSON.writeValueAsString(body) + "\n");
+    revision = next;
+    return next;
+  }
+
+  private void write(String content) throws IOException {
+    Path tmp = path.resolveSibling(path.getFileName() + ".tmp");
+    try (FileChannel ch = FileChannel.open(tmp, StandardOpenOption.CREATE,
+        StandardOpenOption.WRITE, StandardOpenOption.TRUNCATE_EXISTING)) {
+      ByteBuffer buf = ByteBuffer.wrap(content.getBytes(StandardCharsets.UTF_8));
+      while (buf.hasRemaining()) {
+        ch.write(buf);
+      }
+      ch.force(true);
+    }
+    try {
+      Files.move(tmp, path, StandardCopyOption.ATOMIC_MOVE, StandardCopyOption.REPLACE_EXISTING);
+    } catch (AtomicMoveNotSupportedException e) {
+      throw new IOException("the run directory's file system cannot rename atomically; put the"
+          + " run directory on a local disk (" + path + ")", e);
+    }
+  }
+}

@@ -1,0 +1,26 @@
+package dev.stepwarden.metrics;
+
+import java.util.regex.Matcher;
+import java.util.regex.Pattern;
+
+/**
+ * {@code step=10 loss=0.31 lr=1e-3}, also {@code key: value}, separated by spaces, commas or pipes.
+ */
+final class PairsLineParser implements LineParser {
+  private static final Pattern PAIR =
+      Pattern.compile("([A-Za-z_][A-Za-z0-9_./-]*)\\s*[=:]\\s*([^\\s,|;]+)");
+
+  @Override
+  public boolean parse(String line, Fields out) {
+    Matcher m = PAIR.matcher(line);
+    boolean any = false;
+    while (m.find()) {
+      Double v = LineParser.number(m.group(2));
+      if (v != null) {
+        out.put(m.group(1), v);
+        any = true;
+      }
+    }
+    return any;
+  }
+}

@@ -1,0 +1,104 @@
+package dev.stepwarden.rules;
+
+import dev.stepwarden.rules.GuardFile.Action;
+import dev.stepwarden.rules.GuardFile.Condition;
+import dev.stepwarden.rules.GuardFile.Guard;
+import java.util.ArrayList;
+import java.util.List;
+import java.util.Locale;
+
+/** Says in plain words what a loaded guard file will do: the text of {@code stepwarden check}. */
+public final class Explain {
+  private Explain() {}
+
+  public static List<String> describe(GuardFile f) {
+    List<String> out = new ArrayList<>();
+    GuardFile.Run r = f.run();
+    out.add("Run '" + r.name() + "': " + (r.command().isEmpty()
+        ? "the command comes after '--' on the command line"
+        : "runs " + String.join(" ", r.command())) + ", starting at learning rate "
+        + num(r.learningRate()) + ".");
+    out.add("Reads " + switch (f.read().source()) {
+      case STDOUT -> "the trainer's standard output";
+      case STDERR -> "the trainer's standard error";
+      case FILE -> "the file " + f.read().file();
+    } + " as " + f.read().format().name().toLowerCase(Locale.ROOT) + "; series "
+        + f.read().series() + ", step key '" + f.read().stepKey() + "'.");
+    out.add(f.steer().by() == GuardFile.Steer.Method.RESTART
+        ? "A new rate is applied by stopping the trainer and starting it again with it."
+        : "A new rate is written to the control file; the trainer has "
+            + f.steer().confirmWithin().toSeconds() + " s to confirm it"
+            + (f.steer().restartWhenUnconfirmed() ? ", else it is restarted with it." : "."));
+    f.checkpoints().ifPresent(c -> out.add("Checkpoints: files matching " + c.watch()
+        + "; the vault keeps the best and the last " + c.keep() + " healthy ones."));
+    if (f.guards().isEmpty()) {
+      out.add("No guards: only the built-in safety net (a non-finite training loss gives up).");
+    }
+    int i = 1;
+    for (Guard g : f.guards()) {
+      out.add(i++ + ". '" + g.name() + "': when " + condition(g.when()) + ", " + actions(g)
+          + (g.thenWait() > 0 ? "; then rests for " + g.thenWait() + " evaluations" : "") + ".");
+    }
+    GuardFile.Limits l = f.limits();
+    out.add("Limits: rate between " + num(l.minRate()) + " and " + num(l.maxRate())
+        + " (a guard that would go below the floor ends the run); at most " + l.rewinds()
+        + " rewinds and " + l.crashRestarts() + " crash restarts; "
+        + (l.silence().isZero() ? "no silence watchdog."
+            : "no metric for " + l.silence().toMinutes() + " min counts as a hang."));
+    return out;
+  }
+
+  static String condition(Condition c) {
+    String s = c.series();
+    return switch (c.detector()) {
+      case "breaks" -> s + " is NaN or infinite";
+      case "rises" -> "the smoothed " + s + " stays above " + num(c.number("above_best"))
+          + "x its best for " + c.integer("samples") + " samples";
+      case "climbs" -> s + " trends upward over " + c.integer("over")
+          + " samples (Mann-Kendall, p < " + num(c.number("p_below")) + ")";
+      case "wobbles" -> s + " keeps changing direction over " + c.integer("over")
+          + " samples while moving less than " + pct(c.number("net_change_below"));
+      case "flattens" -> "the best " + s + " has not improved by " + pct(c.number("gain_below"))
+          + " in " + c.integer("over") + " evaluations and no downward trend is significant"
+          + " (p < " + num(c.number("p_below")) + ")";
+      case "creeps" -> s + " falls significantly but by less than "
+          + pct(c.number("pace_below")) + " per evaluation over " + c.integer("over")
+          + " evaluations";
+      case "overfits" -> "Prechelt's " + c.params().get("criterion") + " criterion exceeds "
+          + num(c.number("above"));
+      case "stuck_at_chance" -> s + " is still within " + pct(c.number("tolerance"))
+          + " of chance level ln(" + c.integer("classes") + ") at step " + c.integer("by_step");
+      default -> c.detector() + " fires on " + s;
+    };
+  }
+
+  static String actions(Guard g) {
+    List<String> parts = new ArrayList<>();
+    for (Action a : g.actions()) {
+      if (a instanceof Action.Scale sc) {
+        parts.add(sc.factor() < 1 ? "lowers the rate x" + num(sc.factor())
+            : "raises the rate x" + num(sc.factor()) + " (undone if the next window is worse)");
+      } else if (a instanceof Action.SetRate sr) {
+        parts.add("sets the rate to " + num(sr.rate()));
+      } else if (a instanceof Action.Rewind rw) {
+        parts.add("rewinds to the newest healthy checkpoint from before the trouble"
+            + (rw.skipBatches() > 0 ? " and skips " + rw.skipBatches() + " batches" : ""));
+      } else if (a instanceof Action.Stop) {
+        parts.add("stops the run early as a success (exit 3) and names the best checkpoint");
+      } else {
+        parts.add("gives up (exit 4)");
+      }
+    }
+    return "it " + String.join(" and ", parts);
+  }
+
+  private static String num(double v) {
+    return v == Math.rint(v) && Math.abs(v) < 1e9 ? Long.toString((long) v)
+        : String.format(Locale.ROOT, "%.6g", v).replaceAll("0+(e|$)", "$1").replaceAll("\\.(e|$)",
+            "$1");
+  }
+
+  private static String pct(double fraction) {
+    return num(fraction * 100) + " %";
+  }
+}

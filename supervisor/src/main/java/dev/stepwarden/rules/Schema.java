@@ -1,0 +1,165 @@
+package dev.stepwarden.rules;
+
+import java.util.ArrayList;
+import java.util.LinkedHashMap;
+import java.util.List;
+import java.util.Map;
+import tools.jackson.databind.SerializationFeature;
+import tools.jackson.databind.json.JsonMapper;
+
+/**
+ * The JSON Schema (draft 2020-12) of the guard file, generated from {@link Catalogue}: the same
+ * descriptors the loader validates against, so the two cannot drift apart.
+ */
+public final class Schema {
+  private Schema() {}
+
+  public static String json() {
+    return JsonMapper.builder().enable(SerializationFeature.INDENT_OUTPUT).build()
+        .writeValueAsString(tree());
+  }
+
+  static Map<String, Object> tree() {
+    Map<String, Object> root = new LinkedHashMap<>();
+    root.put("$schema", "https://json-schema.org/draft/2020-12/schema");
+    root.put("$id", "https://stepwarden.dev/schema/guard-file.json");
+    root.put("title", "stepwarden guard file");
+    root.put("type", "object");
+    root.put("additionalProperties", false);
+    root.put("required", List.of("run"));
+    Map<String, Object> props = new LinkedHashMap<>();
+    props.put("run", object(Catalogue.RUN, Map.of()));
+    props.put("read", object(Catalogue.READ, Map.of()));
+    props.put("steer", object(Catalogue.STEER, Map.of()));
+    props.put("checkpoints", object(Catalogue.CHECKPOINTS, Map.of()));
+    props.put("limits", object(Catalogue.LIMITS,
+        Map.of("learning_rate", object(Catalogue.RATE_LIMITS, Map.of()))));
+    Map<String, Object> guards = new LinkedHashMap<>();
+    guards.put("type", "array");
+    guards.put("description", "Evaluated in file order on each new sample of the series they"
+        + " watch; at most one intervention per sample.");
+    Map<String, Object> when = new LinkedHashMap<>();
+    when.put("type", "object");
+    when.put("minProperties", 1);
+    when.put("maxProperties", 1);
+    when.put("additionalProperties", false);
+    Map<String, Object> detectors = new LinkedHashMap<>();
+    for (Catalogue.DetectorSpec d : Catalogue.DETECTORS.values()) {
+      List<Key> keys = new ArrayList<>(d.params());
+      keys.add(Key.text("series", d.defaultSeries(), "The series this detector watches."));
+      Map<String, Object> o = object(keys, Map.of());
+      o.put("description", "Fires when " + d.doc() + ".");
+      o.put("type", List.of("object", "null"));
+      detectors.put(d.name(), o);
+    }
+    when.put("properties", detectors);
+    Map<String, Object> guard = object(Catalogue.GUARD, Map.of("when", when, "do", actions()));
+    @SuppressWarnings("unchecked")
+    List<String> req = new ArrayList<>((List<String>) guard.getOrDefault("required", List.of()));
+    req.add("when");
+    req.add("do");
+    guard.put("required", req);
+    guards.put("items", guard);
+    props.put("guards", guards);
+    root.put("properties", props);
+    return root;
+  }
+
+  private static Map<String, Object> actions() {
+    Map<String, Object> named = new LinkedHashMap<>();
+    named.put("type", "string");
+    named.put("enum", List.of("rewind", "stop", "give_up"));
+    List<Object> oneOf = new ArrayList<>();
+    oneOf.add(named);
+    oneOf.add(single("scale", factor("Multiply the rate by this factor (0.5 or 0.5x).")));
+    oneOf.add(single("set_rate", Map.of("type", "number", "exclusiveMinimum", 0)));
+    Map<String, Object> skip = new LinkedHashMap<>();
+    skip.put("type", "object");
+    skip.put("additionalProperties", false);
+    skip.put("properties", Map.of("skip_batches", Map.of("type", "integer", "minimum", 0)));
+    oneOf.add(single("rewind", skip));
+    Map<String, Object> one = Map.of("oneOf", oneOf);
+    Map<String, Object> a = new LinkedHashMap<>();
+    a.put("description", "One action or a list: scale, set_rate, rewind, stop, give_up.");
+    a.put("oneOf", List.of(one, Map.of("type", "array", "minItems", 1, "items", one)));
+    return a;
+  }
+
+  private static Map<String, Object> single(String key, Map<String, Object> value) {
+    Map<String, Object> o = new LinkedHashMap<>();
+    o.put("type", "object");
+    o.put("additionalProperties", false);
+    o.put("required", List.of(key));
+    o.put("properties", Map.of(key, value));
+    return o;
+  }
+
+  private static Map<String, Object> factor(String doc) {
+    Map<String, Object> o = new LinkedHashMap<>();
+    o.put("description", doc);
+    o.put("oneOf", List.of(Map.of("type", "number", "exclusiveMinimum", 0),
+        Map.of("type", "string", "pattern", "^[0-9.eE+-]+\\s*x$")));
+    return o;
+  }
+
+  private static Map<String, Object> object(List<Key> keys, Map<String, Object> nested) {
+    Map<String, Object> o = new LinkedHashMap<>();
+    o.put("type", "object");
+    o.put("additionalProperties", false);
+    Map<String, Object> props = new LinkedHashMap<>();
+    List<String> required = new ArrayList<>();
+    for (Key k : keys) {
+      props.put(k.name(), property(k));
+      if (k.required()) {
+        required.add(k.name());
+      }
+    }
+    props.putAll(nested);
+    o.put("properties", props);
+    if (!required.isEmpty()) {
+      o.put("required", required);
+    }
+    return o;
+  }
+
+  private static Map<String, Object> property(Key k) {
+    Map<String, Object> p = new LinkedHashMap<>();
+    p.put("description", k.doc());
+    switch (k.kind()) {
+      case NUMBER -> {
+        p.put("type", "number");
+        p.put("minimum", k.min());
+        p.put("maximum", k.max());
+      }
+      case INTEGER -> {
+        p.put("type", "integer");
+        p.put("minimum", (long) k.min());
+        p.put("maximum", (long) k.max());
+      }
+      case STRING -> p.put("type", "string");
+      case CHOICE -> p.put("enum", k.choices());
+      case DURATION -> p.put("oneOf", List.of(Map.of("type", "number", "minimum", 0),
+          Map.of("type", "string", "pattern", "^\\d+(\\.\\d+)?\\s*(ms|s|m|h|d)?$")));
+      case FRACTION -> p.put("oneOf", List.of(
+          Map.of("type", "number", "minimum", k.min(), "maximum", k.max()),
+          Map.of("type", "string", "pattern", "^[0-9.eE+-]+\\s*%$")));
+      case FACTOR -> p.put("oneOf", List.of(
+          Map.of("type", "number", "minimum", k.min(), "maximum", k.max()),
+          Map.of("type", "string", "pattern", "^[0-9.eE+-]+\\s*x$")));
+      case STRING_LIST -> p.put("type", "array");
+      case STRING_MAP -> {
+        p.put("type", "object");
+        p.put("additionalProperties", Map.of("type", "string"));
+      }
+      default -> throw new IllegalStateException(k.kind().toString());
+    }
+    if (k.kind() == Key.Kind.STRING_LIST) {
+      p.put("items", Map.of("type", "string"));
+      p.put("minItems", 1);
+    }
+    if (k.defaultValue() != null) {
+      p.put("default", k.defaultValue());
+    }
+    return p;
+  }
+}

@@ -1,0 +1,95 @@
+package dev.stepwarden.supervise;
+
+import java.io.IOException;
+import java.nio.file.FileAlreadyExistsException;
+import java.nio.file.Files;
+import java.nio.file.Path;
+import java.nio.file.attribute.PosixFilePermissions;
+import java.time.Instant;
+import java.time.ZoneOffset;
+import java.time.format.DateTimeFormatter;
+
+/**
+ * The layout of a run directory: everything the next morning needs, in one place.
+ *
+ * <p>Files are created owner-only (0600) and folders 0700 where the file system supports POSIX
+ * permissions: logs and commands may hold secrets from the trainer's environment.
+ */
+public final class RunDirectory {
+  public static final String GUARDS = "guards.yaml";
+  public static final String COMMAND = "command.json";
+  public static final String STDOUT = "trainer.stdout.log";
+  public static final String STDERR = "trainer.stderr.log";
+  public static final String METRICS = "metrics.jsonl";
+  public static final String AUDIT = "audit.jsonl";
+  public static final String CONTROL = "control.json";
+  public static final String STATE = "state.json";
+  public static final String VAULT = "vault";
+
+  private final Path root;
+
+  private RunDirectory(Path root) {
+    this.root = root;
+  }
+
+  /** Creates {@code dir} (or a fresh timestamped folder under ./runs when null). */
+  public static RunDirectory create(Path dir, String runName, Instant now) throws IOException {
+    Path root = dir;
+    if (root == null) {
+      String stamp = DateTimeFormatter.ofPattern("yyyyMMdd-HHmmss").withZone(ZoneOffset.UTC)
+          .format(now);
+      root = Path.of("runs", runName.replaceAll("[^A-Za-z0-9._-]", "_") + "-" + stamp);
+    }
+    root = root.toAbsolutePath().normalize();
+    if (Files.exists(root.resolve(AUDIT))) {
+      throw new FileAlreadyExistsException(root.toString(), null, "this run directory already"
+          + " holds a run; choose another --run-dir, or continue it with run --resume");
+    }
+    createPrivateDirectories(root);
+    createPrivateDirectories(root.resolve(VAULT));
+    return new RunDirectory(root);
+  }
+
+  /** Opens an existing run directory (resume, report). */
+  public static RunDirectory existing(Path dir) {
+    return new RunDirectory(dir.toAbsolutePath().normalize());
+  }
+
+  public Path root() {
+    return root;
+  }
+
+  public Path file(String name) {
+    return root.resolve(name);
+  }
+
+  /** Creates {@code file} empty with owner-only permissions, if it does not exist yet. */
+  public Path privateFile(String name) throws IOException {
+    Path p = root.resolve(name);
+    if (!Files.exists(p)) {
+      try {
+        Files.createFile(p, PosixFilePermissions.asFileAttribute(
+            PosixFilePermissions.fromString("rw-------")));
+      } catch (UnsupportedOperationException e) {
+        Files.createFile(p);
+      }
+    }
+    return p;
+  }
+
+  static void createPrivateDirectories(Path dir) throws IOException {
+    if (Files.isDirectory(dir)) {
+      return;
+    }
+    Path parent = dir.getParent();
+    if (parent != null && !Files.isDirectory(parent)) {
+      Files.createDirectories(parent);
+    }
+    try {
+      Files.createDirectory(dir, PosixFilePermissions.asFileAttribute(
+          PosixFilePermissions.fromString("rwx------")));
+    } catch (UnsupportedOperationException e) {
+      Files.createDirectory(dir);
+    }
+  }
+}

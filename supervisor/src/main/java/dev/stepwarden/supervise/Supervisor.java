@@ -1,0 +1,664 @@
+package dev.stepwarden.supervise;
+
+import dev.stepwarden.audit.AuditLog;
+import dev.stepwarden.checkpoints.CheckpointLedger;
+import dev.stepwarden.control.ControlFile;
+import dev.stepwarden.metrics.MetricsIntake;
+import dev.stepwarden.metrics.ReadPlan;
+import dev.stepwarden.metrics.Sample;
+import dev.stepwarden.process.LaunchSpec;
+import dev.stepwarden.process.StopResult;
+import dev.stepwarden.process.TrainerProcess;
+import dev.stepwarden.rules.Decision;
+import dev.stepwarden.rules.GuardEngine;
+import dev.stepwarden.rules.GuardFile;
+import dev.stepwarden.rules.GuardFiles;
+import java.io.BufferedWriter;
+import java.io.IOException;
+import java.io.PrintStream;
+import java.nio.charset.StandardCharsets;
+import java.nio.file.Files;
+import java.nio.file.Path;
+import java.nio.file.StandardCopyOption;
+import java.nio.file.StandardOpenOption;
+import java.time.Clock;
+import java.time.Duration;
+import java.util.ArrayDeque;
+import java.util.ArrayList;
+import java.util.LinkedHashMap;
+import java.util.List;
+import java.util.Locale;
+import java.util.Map;
+import java.util.Optional;
+import java.util.OptionalInt;
+import java.util.concurrent.BlockingQueue;
+import java.util.concurrent.LinkedBlockingQueue;
+import java.util.concurrent.TimeUnit;
+import java.util.regex.Matcher;
+import java.util.regex.Pattern;
+import tools.jackson.databind.json.JsonMapper;
+
+/**
+ * Supervises one training run from launch to the morning: the path one metric line takes is
+ * pump thread -> {@link MetricsIntake} -> normalized metrics file -> {@link GuardEngine} ->
+ * audit record (forced to disk) -> action -> outcome record.
+ *
+ * <p>Design: pump threads parse and decide under one lock, and carry out only what is quick and
+ * never blocks on the trainer (writing the control file). Anything that stops the trainer
+ * (ending the run, a rewind, a restart) is handed to the supervising thread through a queue, since
+ * stopping waits for the pumps to drain and must never run on a pump thread. The supervising
+ * thread also does the periodic work: exit detection, checkpoint scans, the silence watchdog and
+ * confirmation time-outs. Wall time comes from the injected {@link Clock}.
+ */
+public final class Supervisor {
+  private static final JsonMapper JSON = JsonMapper.builder().build();
+  private static final Pattern OOM = Pattern.compile(
+      "(?i)(out of memory|OutOfMemoryError|CUDA error: out of memory|MemoryError|Killed)");
+  private static final long TICK_MILLIS = 200;
+  private static final long SCAN_MILLIS = 1_000;
+  private static final int MISSING_KEY_WARNING_AFTER = 1_000;
+
+  /** What the run came to. */
+  public record Result(RunOutcome outcome, String reason, Path runDir, Path auditLog,
+      int interventions, double finalRate, Optional<CheckpointLedger.Entry> bestCheckpoint,
+      double bestValidation, long bestValidationStep) {}
+
+  /** Options that are not part of the guard file. */
+  public record Options(Path runDir, boolean quiet, Clock clock, PrintStream console) {
+    public Options {
+      clock = clock == null ? Clock.systemUTC() : clock;
+      console = console == null ? System.err : console;
+    }
+  }
+
+  private sealed interface Request {
+    record End(Decision decision) implements Request {}
+
+    record Relaunch(String reason, Decision decision, long targetStep, int skipBatches,
+        boolean fromCheckpoint) implements Request {}
+  }
+
+  private final GuardFile rules;
+  private final Options options;
+  private final Clock clock;
+  private final Object lock = new Object();
+  private final BlockingQueue<Request> requests = new LinkedBlockingQueue<>();
+  private final ArrayDeque<String> recentStderr = new ArrayDeque<>();
+
+  private RunDirectory dir;
+  private AuditLog audit;
+  private ControlFile control;
+  private MetricsIntake intake;
+  private GuardEngine engine;
+  private CheckpointLedger ledger;
+  private BufferedWriter metricsOut;
+  private Path workdir;
+
+  private volatile TrainerProcess trainer;
+  private volatile boolean finished;
+  private volatile boolean interrupted;
+  private int generation;
+  private int attempt;
+  private int crashRestarts;
+  private int interventions;
+  private long lastMetricMillis;
+  private long lastScanMillis;
+  private double lastTrain = Double.NaN;
+  private double lastValidation = Double.NaN;
+  private boolean missingWarned;
+  private Pending pending;
+  private String resumeFrom = "";
+
+  private record Pending(long revision, double rate, long sinceMillis, long decisionSeq) {}
+
+  public Supervisor(GuardFile rules, Options options) {
+    if (rules.run().command().isEmpty()) {
+      throw new IllegalArgumentException("no command to run: give one in run.command of the"
+          + " guard file or after '--'");
+    }
+    this.rules = rules;
+    this.options = options;
+    this.clock = options.clock();
+  }
+
+  /** The run directory, once {@link #run()} has created it. */
+  public Path runDir() {
+    return dir == null ? null : dir.root();
+  }
+
+  /** Runs the night; returns when the trainer finished, a guard ended it, or it was stopped. */
+  public Result run() throws IOException, InterruptedException {
+    prepare();
+    try {
+      launch("start", 0);
+      return loop();
+    } finally {
+      finished = true;
+      closeQuietly();
+    }
+  }
+
+  /**
+   * Called from a shutdown hook on SIGINT/SIGTERM: stops the trainer's tree (TERM, grace, KILL)
+   * and writes the audit record. Does nothing when the run has already ended.
+   */
+  public void interrupt(String signal) {
+    if (finished) {
+      return;
+    }
+    interrupted = true;
+    TrainerProcess t = trainer;
+    StopResult r = t == null ? null : t.stop();
+    try {
+      synchronized (lock) {
+        Map<String, Object> f = new LinkedHashMap<>();
+        f.put("signal", signal);
+        f.put("step", intake == null ? -1 : intake.lastStep());
+        f.put("trainer_stopped", r != null && r.wasAlive());
+        f.put("trainer_killed", r != null && r.killed());
+        f.put("learning_rate", engine == null ? null : engine.rate());
+        if (audit != null) {
+          audit.append("interrupted", f);
+        }
+        flushMetrics();
+      }
+    } catch (IOException e) {
+      options.console().println("stepwarden: " + e.getMessage());
+    }
+  }
+
+  private void prepare() throws IOException {
+    dir = RunDirectory.create(options.runDir(), rules.run().name(), clock.instant());
+    workdir = rules.run().workdir() == null ? Path.of("").toAbsolutePath()
+        : rules.run().workdir().toAbsolutePath();
+    if (rules.source() != null && Files.isRegularFile(rules.source())) {
+      Files.copy(rules.source(), dir.privateFile(RunDirectory.GUARDS),
+          StandardCopyOption.REPLACE_EXISTING);
+    }
+    audit = AuditLog.open(dir.privateFile(RunDirectory.AUDIT), clock);
+    control = new ControlFile(dir.file(RunDirectory.CONTROL), 0);
+    intake = new MetricsIntake(rules.read());
+    engine = new GuardEngine(rules);
+    ledger = rules.checkpoints().map(c -> new CheckpointLedger(workdir, c.watch())).orElse(null);
+    metricsOut = Files.newBufferedWriter(dir.privateFile(RunDirectory.METRICS),
+        StandardCharsets.UTF_8, StandardOpenOption.APPEND);
+    control.publish(engine.rate(), "(start)", 0);
+    Map<String, Object> f = new LinkedHashMap<>();
+    f.put("name", rules.run().name());
+    f.put("command", rules.run().command());
+    f.put("workdir", workdir.toString());
+    f.put("rules", rules.source() == null ? null : rules.source().toString());
+    f.put("run_dir", dir.root().toString());
+    f.put("learning_rate", engine.rate());
+    f.put("steer", rules.steer().by().name().toLowerCase(Locale.ROOT).replace('_', '-'));
+    f.put("guards", rules.guards().stream().map(GuardFile.Guard::name).toList());
+    audit.append("run-start", f);
+    lastMetricMillis = clock.millis();
+  }
+
+  private void launch(String reason, int skipBatches) throws IOException {
+    attempt++;
+    int gen = ++generation;
+    Map<String, String> values = new LinkedHashMap<>();
+    values.put("learning_rate", formatRate(engine.rate()));
+    values.put("resume_from", resumeFrom);
+    values.put("skip_batches", Integer.toString(skipBatches));
+    values.put("attempt", Integer.toString(attempt));
+    values.put("run_dir", dir.root().toString());
+    List<String> argv = new ArrayList<>();
+    for (String word : rules.run().command()) {
+      argv.add(fill(word, values));
+    }
+    Map<String, String> env = new LinkedHashMap<>(rules.run().env());
+    env.put("STEPWARDEN_CONTROL", control.path().toString());
+    env.put("STEPWARDEN_RUN_DIR", dir.root().toString());
+    Map<String, Object> cmd = new LinkedHashMap<>();
+    cmd.put("argv", argv);
+    cmd.put("workdir", workdir.toString());
+    cmd.put("env", env);
+    cmd.put("attempt", attempt);
+    Files.writeString(dir.privateFile(RunDirectory.COMMAND), JSON.writeValueAsString(cmd) + "\n",
+        StandardCharsets.UTF_8, StandardOpenOption.TRUNCATE_EXISTING, StandardOpenOption.WRITE);
+    LaunchSpec spec = LaunchSpec.builder()
+        .command(argv)
+        .workingDirectory(workdir)
+        .environment(env)
+        .stdoutLog(dir.privateFile(RunDirectory.STDOUT))
+        .stderrLog(dir.privateFile(RunDirectory.STDERR))
+        .echo(!options.quiet())
+        .stopGrace(rules.run().stopGrace())
+        .build();
+    ReadPlan.Source source = rules.read().source();
+    trainer = TrainerProcess.start(spec, (stream, line) -> onLine(gen, stream.name(), line,
+        source));
+    Map<String, Object> f = new LinkedHashMap<>();
+    f.put("attempt", attempt);
+    f.put("reason", reason);
+    f.put("pid", trainer.pid());
+    f.put("argv", argv);
+    f.put("learning_rate", engine.rate());
+    f.put("resume_from", resumeFrom);
+    f.put("skip_batches", skipBatches);
+    audit.append("launch", f);
+    lastMetricMillis = clock.millis();
+  }
+
+  /** Fills {@code {name}} placeholders; the values are numbers and paths we produced ourselves. */
+  static String fill(String word, Map<String, String> values) {
+    String out = word;
+    for (String p : GuardFiles.PLACEHOLDERS) {
+      out = out.replace("{" + p + "}", values.getOrDefault(p, ""));
+    }
+    return out;
+  }
+
+  static String formatRate(double rate) {
+    return Double.toString(rate);
+  }
+
+  private void onLine(int gen, String stream, String line, ReadPlan.Source source) {
+    boolean stderr = stream.equals("STDERR");
+    synchronized (lock) {
+      if (gen != generation || interrupted) {
+        return; // a stopped trainer's last words: its decisions are no longer ours to make
+      }
+      if (stderr) {
+        if (recentStderr.size() == 20) {
+          recentStderr.removeFirst();
+        }
+        recentStderr.addLast(line.length() > 500 ? line.substring(0, 500) : line);
+      }
+      if ((source == ReadPlan.Source.STDERR) != stderr) {
+        return;
+      }
+      try {
+        handle(line);
+      } catch (IOException e) {
+        requests.add(new Request.End(null));
+        options.console().println("stepwarden: " + e.getMessage());
+      }
+    }
+  }
+
+  private void handle(String line) throws IOException {
+    long now = clock.millis();
+    MetricsIntake.Reading r = intake.accept(line, now);
+    if (r == null) {
+      warnMissingKeys();
+      return;
+    }
+    if (pending != null && confirms(r)) {
+      Map<String, Object> f = new LinkedHashMap<>();
+      f.put("decision_seq", pending.decisionSeq());
+      f.put("revision", pending.revision());
+      f.put("learning_rate", pending.rate());
+      f.put("after_ms", now - pending.sinceMillis());
+      f.put("by", r.hasRevision() && r.appliedRevision() >= pending.revision()
+          ? "applied_revision" : "reported rate");
+      audit.append("confirmed", f);
+      pending = null;
+    }
+    Sample s = r.sample();
+    if (s == null) {
+      return;
+    }
+    lastMetricMillis = now;
+    Double t = s.value("train");
+    if (t != null) {
+      lastTrain = t;
+    }
+    Double v = s.value("validation");
+    if (v != null) {
+      lastValidation = v;
+    }
+    writeNormalized(s);
+    warnMissingKeys();
+    Optional<Decision> d = engine.onSample(s);
+    if (d.isPresent()) {
+      act(d.get());
+    }
+  }
+
+  private boolean confirms(MetricsIntake.Reading r) {
+    if (r.hasRevision() && r.appliedRevision() >= pending.revision()) {
+      return true;
+    }
+    return r.hasRate()
+        && Math.abs(r.reportedRate() - pending.rate()) <= 1e-4 * Math.abs(pending.rate());
+  }
+
+  private void warnMissingKeys() throws IOException {
+    if (missingWarned || intake.lines() < MISSING_KEY_WARNING_AFTER) {
+      return;
+    }
+    missingWarned = true;
+    List<String> missing = intake.missingSeries();
+    if (!missing.isEmpty()) {
+      Map<String, Object> f = new LinkedHashMap<>();
+      f.put("missing", missing);
+      f.put("after_lines", intake.lines());
+      f.put("keys_seen", intake.keysSeen());
+      String msg = "no line had " + String.join(", ", missing) + " after " + intake.lines()
+          + " lines; keys seen: " + String.join(", ", intake.keysSeen());
+      f.put("message", msg);
+      audit.append("warning", f);
+      options.console().println("stepwarden: warning: " + msg);
+    }
+  }
+
+  private void act(Decision d) throws IOException {
+    interventions++;
+    long seq = audit.append("decision", decisionFields(d));
+    say("step " + d.step() + ": guard '" + d.guard() + "' fired: " + d.evidence().summary()
+        + (d.changesRate() ? "; rate " + d.rateBefore() + " -> " + d.rateAfter() : ""));
+    if (d.ending() != Decision.Ending.CONTINUE) {
+      requests.add(new Request.End(d));
+      return;
+    }
+    if (d.rewinds()) {
+      long target = onsetStep(d);
+      requests.add(new Request.Relaunch("rewind", d, target, d.skipBatches(), true));
+      return;
+    }
+    if (!d.changesRate()) {
+      return;
+    }
+    if (rules.steer().by() == GuardFile.Steer.Method.RESTART) {
+      requests.add(new Request.Relaunch("new rate by restart", d, intake.lastStep(), 0, true));
+      return;
+    }
+    long revision = control.publish(d.rateAfter(), d.guard(), d.step());
+    Map<String, Object> f = new LinkedHashMap<>();
+    f.put("decision_seq", seq);
+    f.put("result", "control file revision " + revision + " written");
+    f.put("revision", revision);
+    f.put("learning_rate", d.rateAfter());
+    audit.append("outcome", f);
+    pending = new Pending(revision, d.rateAfter(), clock.millis(), seq);
+  }
+
+  private static long onsetStep(Decision d) {
+    Object onset = d.evidence().figures().get("onset_step");
+    if (onset instanceof Number n) {
+      return n.longValue();
+    }
+    Object best = d.evidence().figures().get("best_step");
+    return best instanceof Number n ? n.longValue() : d.step();
+  }
+
+  private static Map<String, Object> decisionFields(Decision d) {
+    Map<String, Object> f = new LinkedHashMap<>();
+    f.put("step", d.step());
+    f.put("guard", d.guard());
+    f.put("detector", d.evidence().detector());
+    f.put("evidence", d.evidence().summary());
+    f.put("figures", d.evidence().figures());
+    f.put("action", d.actions().stream().map(Supervisor::describe).toList());
+    f.put("rate_before", d.rateBefore());
+    f.put("rate_after", d.rateAfter());
+    f.put("ending", d.ending().name().toLowerCase(Locale.ROOT));
+    if (!d.note().isEmpty()) {
+      f.put("note", d.note());
+    }
+    return f;
+  }
+
+  static String describe(GuardFile.Action a) {
+    if (a instanceof GuardFile.Action.Scale s) {
+      return "scale " + s.factor();
+    }
+    if (a instanceof GuardFile.Action.SetRate s) {
+      return "set_rate " + s.rate();
+    }
+    if (a instanceof GuardFile.Action.Rewind r) {
+      return r.skipBatches() > 0 ? "rewind, skip " + r.skipBatches() + " batches" : "rewind";
+    }
+    return a instanceof GuardFile.Action.Stop ? "stop" : "give_up";
+  }
+
+  private Result loop() throws IOException, InterruptedException {
+    while (true) {
+      Request req = requests.poll(TICK_MILLIS, TimeUnit.MILLISECONDS);
+      if (interrupted) {
+        return result(RunOutcome.INTERRUPTED, "interrupted by a signal");
+      }
+      if (req instanceof Request.End end) {
+        return end(end.decision());
+      }
+      if (req instanceof Request.Relaunch rl) {
+        relaunch(rl);
+        continue;
+      }
+      TrainerProcess t = trainer;
+      OptionalInt exit = t.waitFor(Duration.ZERO);
+      if (exit.isPresent()) {
+        // The pumps have drained: a decision on the last lines wins over the exit itself.
+        Request last = requests.poll();
+        if (last != null) {
+          requests.add(last);
+          continue;
+        }
+        Result r = exited(exit.getAsInt());
+        if (r != null) {
+          return r;
+        }
+        continue;
+      }
+      periodic();
+    }
+  }
+
+  private void periodic() throws IOException {
+    long now = clock.millis();
+    synchronized (lock) {
+      flushMetrics();
+      if (ledger != null && now - lastScanMillis >= SCAN_MILLIS) {
+        lastScanMillis = now;
+        boolean healthy = Double.isNaN(lastTrain) || Double.isFinite(lastTrain);
+        for (CheckpointLedger.Entry e : ledger.scan(intake.lastStep(), lastTrain, lastValidation,
+            healthy, now)) {
+          Map<String, Object> f = new LinkedHashMap<>();
+          f.put("path", e.path().toString());
+          f.put("step", e.step());
+          f.put("size", e.size());
+          f.put("sha256", e.sha256());
+          f.put("train", e.train());
+          f.put("validation", e.validation());
+          f.put("healthy", e.healthy());
+          audit.append("checkpoint", f);
+        }
+      }
+      if (pending != null && now - pending.sinceMillis() > rules.steer().confirmWithin().toMillis()) {
+        Map<String, Object> f = new LinkedHashMap<>();
+        f.put("decision_seq", pending.decisionSeq());
+        f.put("revision", pending.revision());
+        f.put("learning_rate", pending.rate());
+        f.put("waited_ms", now - pending.sinceMillis());
+        f.put("fallback", rules.steer().restartWhenUnconfirmed() ? "restart" : "none");
+        audit.append("not-confirmed", f);
+        say("the trainer did not confirm rate " + pending.rate() + " within "
+            + rules.steer().confirmWithin().toSeconds() + " s");
+        pending = null;
+        if (rules.steer().restartWhenUnconfirmed()) {
+          requests.add(new Request.Relaunch("change not confirmed", null, intake.lastStep(), 0,
+              true));
+        }
+      }
+      Duration silence = rules.limits().silence();
+      if (!silence.isZero() && now - lastMetricMillis > silence.toMillis()) {
+        Map<String, Object> f = new LinkedHashMap<>();
+        f.put("quiet_ms", now - lastMetricMillis);
+        f.put("limit_ms", silence.toMillis());
+        f.put("step", intake.lastStep());
+        audit.append("silence", f);
+        say("no metric for " + (now - lastMetricMillis) / 1000 + " s: treating the trainer as"
+            + " hung");
+        lastMetricMillis = now;
+        if (crashRestarts >= rules.limits().crashRestarts()) {
+          requests.add(new Request.End(null));
+        } else {
+          crashRestarts++;
+          requests.add(new Request.Relaunch("hang", null, intake.lastStep(), 0, true));
+        }
+      }
+    }
+  }
+
+  private void relaunch(Request.Relaunch rl) throws IOException {
+    StopResult stop = trainer.stop();
+    synchronized (lock) {
+      generation++; // lines still draining from the old trainer are ignored
+      Optional<CheckpointLedger.Entry> target = Optional.empty();
+      if (rl.fromCheckpoint() && ledger != null) {
+        ledger.scan(intake.lastStep(), lastTrain, lastValidation, false, clock.millis());
+        target = ledger.latestHealthyAtOrBefore(rl.targetStep());
+      }
+      resumeFrom = target.map(e -> e.path().toString()).orElse("");
+      Map<String, Object> f = new LinkedHashMap<>();
+      f.put("reason", rl.reason());
+      f.put("trainer_killed", stop.killed());
+      f.put("resume_from", resumeFrom.isEmpty() ? null : resumeFrom);
+      f.put("resume_step", target.map(CheckpointLedger.Entry::step).orElse(null));
+      f.put("learning_rate", engine.rate());
+      f.put("result", target.isPresent() ? "restarting from the checkpoint of step "
+          + target.get().step() : "restarting from scratch (no healthy checkpoint before step "
+          + rl.targetStep() + ")");
+      audit.append("outcome", f);
+      pending = null;
+      if (target.isPresent()) {
+        intake.continueAfter(target.get().step());
+      }
+      launch(rl.reason(), rl.skipBatches());
+    }
+  }
+
+  private Result exited(int code) throws IOException, InterruptedException {
+    synchronized (lock) {
+      flushMetrics();
+      Map<String, Object> f = new LinkedHashMap<>();
+      f.put("exit_code", code);
+      f.put("step", intake.lastStep());
+      if (code == 0) {
+        audit.append("trainer-exit", f);
+        return result(RunOutcome.FINISHED, "the trainer finished normally");
+      }
+      String oom = recentStderr.stream().filter(l -> OOM.matcher(l).find()).findFirst()
+          .orElse(null);
+      if (oom != null) {
+        f.put("out_of_memory", oom);
+      } else if (code == 137) {
+        f.put("note", "killed by signal 9; possibly the kernel's out-of-memory killer");
+      }
+      f.put("stderr_tail", List.copyOf(recentStderr));
+      audit.append("crash", f);
+      if (crashRestarts >= rules.limits().crashRestarts()) {
+        return result(RunOutcome.GAVE_UP, "the trainer exited with code " + code
+            + (oom != null ? " (out of memory)" : "") + " and the crash-restart budget ("
+            + rules.limits().crashRestarts() + ") is spent");
+      }
+      crashRestarts++;
+    }
+    long backoff = Math.min(rules.limits().crashBackoff().toMillis() << (crashRestarts - 1),
+        300_000L);
+    say("trainer exited with code " + code + "; restart " + crashRestarts + " of "
+        + rules.limits().crashRestarts() + " in " + backoff + " ms");
+    Thread.sleep(backoff);
+    relaunch(new Request.Relaunch("crash", null, intake.lastStep(), 0, true));
+    return null;
+  }
+
+  private Result end(Decision d) throws IOException {
+    StopResult stop = trainer.stop();
+    synchronized (lock) {
+      generation++;
+      flushMetrics();
+      if (ledger != null) {
+        ledger.scan(intake.lastStep(), lastTrain, lastValidation, true, clock.millis());
+      }
+      RunOutcome outcome = d == null ? RunOutcome.GAVE_UP
+          : d.ending() == Decision.Ending.STOP_EARLY ? RunOutcome.STOPPED_EARLY
+          : RunOutcome.GAVE_UP;
+      String reason = d == null ? "the supervisor stopped the run (see the previous record)"
+          : "guard '" + d.guard() + "': " + d.evidence().summary()
+              + (d.note().isEmpty() ? "" : " (" + d.note() + ")");
+      Map<String, Object> f = new LinkedHashMap<>();
+      f.put("result", outcome == RunOutcome.STOPPED_EARLY ? "stopped early" : "gave up");
+      f.put("trainer_killed", stop.killed());
+      audit.append("outcome", f);
+      return result(outcome, reason);
+    }
+  }
+
+  private Result result(RunOutcome outcome, String reason) throws IOException {
+    Optional<CheckpointLedger.Entry> best = ledger == null ? Optional.empty() : ledger.best();
+    Map<String, Object> f = new LinkedHashMap<>();
+    f.put("outcome", outcome.name().toLowerCase(Locale.ROOT).replace('_', '-'));
+    f.put("exit_code", outcome.exitCode());
+    f.put("reason", reason);
+    f.put("interventions", interventions);
+    f.put("final_learning_rate", engine.rate());
+    f.put("best_validation", Double.isNaN(engine.bestValidation()) ? null
+        : engine.bestValidation());
+    f.put("best_validation_step", engine.bestValidationStep());
+    f.put("best_checkpoint", best.map(e -> e.path().toString()).orElse(null));
+    f.put("lines", intake.lines());
+    f.put("metric_lines", intake.metricLines());
+    f.put("ignored_lines", intake.ignoredLines());
+    audit.append("run-end", f);
+    return new Result(outcome, reason, dir.root(), audit.path(), interventions, engine.rate(),
+        best, engine.bestValidation(), engine.bestValidationStep());
+  }
+
+  private void writeNormalized(Sample s) throws IOException {
+    StringBuilder b = new StringBuilder(96);
+    b.append("{\"step\":").append(s.step());
+    if (!Double.isNaN(s.epoch())) {
+      b.append(",\"epoch\":").append(s.epoch());
+    }
+    b.append(",\"t\":").append(s.wallMillis());
+    b.append(",\"lr\":").append(engine.rate());
+    for (Map.Entry<String, Double> e : s.values().entrySet()) {
+      b.append(",\"").append(e.getKey()).append("\":");
+      double v = e.getValue();
+      if (Double.isFinite(v)) {
+        b.append(v);
+      } else {
+        b.append('"').append(Double.isNaN(v) ? "nan" : v > 0 ? "inf" : "-inf").append('"');
+      }
+    }
+    metricsOut.append(b).append('\n');
+  }
+
+  private void flushMetrics() throws IOException {
+    if (metricsOut != null) {
+      metricsOut.flush();
+    }
+  }
+
+  private void say(String message) {
+    if (!options.quiet()) {
+      options.console().println("stepwarden: " + message);
+    }
+  }
+
+  private void closeQuietly() {
+    try {
+      synchronized (lock) {
+        if (metricsOut != null) {
+          metricsOut.close();
+        }
+        if (audit != null) {
+          audit.close();
+        }
+      }
+    } catch (IOException e) {
+      options.console().println("stepwarden: " + e.getMessage());
+    }
+  }
+
+  /** Matches the OOM hint, for tests. */
+  static boolean looksLikeOutOfMemory(String line) {
+    Matcher m = OOM.matcher(line);
+    return m.find();
+  }
+}
