@@ -1,0 +1,563 @@
+package dev.stepwarden.process;
+
+import java.io.File;
+import java.io.FileOutputStream;
+import java.io.IOException;
+import java.io.OutputStream;
+import java.nio.file.FileAlreadyExistsException;
+import java.nio.file.Files;
+import java.nio.file.Path;
+import java.nio.file.attribute.PosixFilePermission;
+import java.nio.file.attribute.PosixFilePermissions;
+import java.time.Duration;
+import java.util.ArrayList;
+import java.util.EnumSet;
+import java.util.LinkedHashSet;
+import java.util.List;
+import java.util.Objects;
+import java.util.Optional;
+import java.util.OptionalInt;
+import java.util.Set;
+import java.util.concurrent.CompletableFuture;
+import java.util.concurrent.ConcurrentHashMap;
+import java.util.concurrent.ExecutionException;
+import java.util.concurrent.TimeUnit;
+import java.util.concurrent.atomic.AtomicInteger;
+import java.util.concurrent.atomic.AtomicReference;
+
+/**
+ * One running trainer: the user's unmodified command, its output pumps, and a stop that ends its
+ * whole process tree.
+ *
+ * <h2>Design note</h2>
+ *
+ * <p><b>Launch.</b> The argv runs directly (no shell, so spaces and metacharacters arrive
+ * verbatim), wrapped as {@code setpriv --pdeathsig KILL -- setsid -- ARGV}. Both helpers exec in
+ * place, so {@link #pid()} is the trainer's own pid and, thanks to {@code setsid}, also its session
+ * and process-group id: everything the trainer forks (data-loader workers, shells, ...) shares the
+ * group unless it moves out on purpose. stdin is {@code /dev/null}. The helpers are looked up at
+ * fixed paths and probed once; when absent the trainer runs unwrapped (see Fallback).
+ *
+ * <p><b>Why a launcher thread.</b> Linux delivers the parent-death signal when the <em>thread</em>
+ * that forked the child exits, not the process. A trainer forked from a short-lived thread (a
+ * request handler, a Quartz worker, a test) would be SIGKILLed the moment that thread ends. So
+ * every trainer is forked by its own daemon launcher thread that then just waits for the trainer's
+ * exit, keeping the parent-death binding until the trainer is gone.
+ *
+ * <p><b>If the supervisor JVM is SIGKILLed</b> (or crashes, or is OOM-killed): the launcher
+ * thread dies with it, so the kernel SIGKILLs the trainer (its pdeathsig). That signal reaches only
+ * the trainer itself (it is not inherited over fork). Its descendants learn of the loss through the
+ * pipes: the read ends die with the JVM, so their next write to stdout/stderr fails with EPIPE,
+ * which kills them by SIGPIPE or raises an error (Python ignores SIGPIPE and raises
+ * {@code BrokenPipeError}). A descendant that neither writes nor watches its parent (a silent
+ * {@code sleep}) survives as an orphan. Many frameworks' worker processes poll their parent and exit
+ * on their own. There is no grace and no final checkpoint in this path; resume works from the last
+ * checkpoint written. On an ordinary JVM exit (including SIGTERM/SIGINT to the supervisor) a
+ * shutdown hook runs {@link #stop()} on every live trainer first, so they get TERM and their grace.
+ *
+ * <p><b>Pumps.</b> stdout and stderr each have a pump thread reading 64 KiB chunks: raw bytes go
+ * to the log through a buffer that is flushed whenever the pipe is empty (so a tailer sees complete
+ * output, without a syscall per line); complete lines go to the {@link LineListener} and the echo.
+ * The pumps never stop draining, so a trainer never blocks on a full pipe because of a log error or
+ * a listener exception. Line rules are in {@link LaunchSpec#maxLineChars()} and the listener docs:
+ * split on {@code '\n'}, drop a {@code '\r'} before it, keep what follows the last other
+ * {@code '\r'} (progress bars), cut lines longer than the limit (counted in
+ * {@link #oversizedLines()}), decode UTF-8 leniently. The log always has every byte.
+ *
+ * <p><b>Stop.</b> TERM to the group ({@code kill -s TERM -- -PGID}, atomic against processes
+ * forked a moment ago), plus to descendants that left the group; wait up to the grace until the
+ * trainer, every running group member and every known descendant are gone; then KILL the same set.
+ * This runs even when the trainer itself has already exited but members of its group linger. The
+ * trainer is reaped by the JDK, so it is never left a zombie; reaping grandchildren (whose parent
+ * died) is the kernel's job via PID 1 or a subreaper: in a container, run with an init
+ * ({@code docker run --init}) or orphans stay zombies. Zombies count as gone here.
+ *
+ * <p><b>Fallback</b> (no {@code setsid}): the trainer shares the supervisor's group, which must
+ * never be signalled, so stop walks {@link ProcessHandle#descendants()} instead, refreshed while it
+ * waits. It cannot reach a grandchild that was already orphaned. Without {@code setpriv} the trainer
+ * outlives a SIGKILLed supervisor.
+ *
+ * <p><b>JDK pipe caveat.</b> When the trainer process itself exits, the JDK drains what is in the
+ * pipe and closes it. Output written later by leftover group members is not captured, and those
+ * writers get EPIPE. Until then a leftover that holds the pipe open silently keeps the pump, and so
+ * {@link #waitFor()}, waiting; {@link #stop()} ends that.
+ */
+public final class TrainerProcess implements AutoCloseable {
+  private static final Duration KILL_WAIT = Duration.ofSeconds(5);
+  private static final Duration PUMP_WAIT = Duration.ofSeconds(2);
+  private static final Duration GROUP_CONFIRM_WAIT = Duration.ofSeconds(2);
+  private static final Set<TrainerProcess> LIVE = ConcurrentHashMap.newKeySet();
+  private static final AtomicInteger SEQUENCE = new AtomicInteger();
+
+  static {
+    Runtime.getRuntime().addShutdownHook(
+        new Thread(TrainerProcess::stopAllOnShutdown, "stepwarden-trainer-shutdown"));
+  }
+
+  private final LaunchSpec spec;
+  private final LineListener listener;
+  private final ProcessTools tools;
+  private final List<String> launchedCommand;
+  private final Process process;
+  private final long pid;
+  private final boolean groupMode;
+  private final boolean ownGroupConfirmed;
+  private final LinePump out;
+  private final LinePump err;
+  private final AtomicReference<Throwable> firstFailure = new AtomicReference<>();
+  private final Object stopLock = new Object();
+  private volatile StopResult stopResult;
+  private boolean stopInterrupted; // guarded by stopLock
+
+  private TrainerProcess(LaunchSpec spec, LineListener listener, ProcessTools tools,
+      List<String> launchedCommand, Process process, OutputStream outLog, OutputStream errLog) {
+    this.spec = spec;
+    this.listener = listener;
+    this.tools = tools;
+    this.launchedCommand = List.copyOf(launchedCommand);
+    this.process = process;
+    this.pid = process.pid();
+    this.groupMode = tools.setsid().isPresent();
+    this.out = new LinePump(process.getInputStream(), TrainerStream.STDOUT, outLog, listener,
+        spec.echo() ? System.out : null, spec.maxLineChars(), this::recordFailure);
+    this.err = new LinePump(process.getErrorStream(), TrainerStream.STDERR, errLog, listener,
+        spec.echo() ? System.err : null, spec.maxLineChars(), this::recordFailure);
+    startDaemon(out, "stepwarden-pump-stdout-" + pid);
+    startDaemon(err, "stepwarden-pump-stderr-" + pid);
+    this.ownGroupConfirmed = groupMode && awaitOwnGroup();
+  }
+
+  /**
+   * Launches the trainer and starts pumping its output.
+   *
+   * @throws IOException when the program is not found, a log cannot be opened or the OS refuses to
+   *     start the process; the message names the program or file
+   */
+  public static TrainerProcess start(LaunchSpec spec, LineListener listener) throws IOException {
+    return start(spec, listener, ProcessTools.system());
+  }
+
+  static TrainerProcess start(LaunchSpec spec, LineListener listener, ProcessTools tools)
+      throws IOException {
+    Objects.requireNonNull(spec, "spec");
+    Objects.requireNonNull(listener, "listener");
+    checkProgram(spec);
+    List<String> argv = tools.wrap(spec.command());
+    ProcessBuilder pb = new ProcessBuilder(argv)
+        .directory(spec.workingDirectory().toFile())
+        .redirectInput(new File("/dev/null"));
+    pb.environment().putAll(spec.environment());
+    OutputStream outLog = null;
+    OutputStream errLog = null;
+    Process p;
+    try {
+      outLog = openLog(spec.stdoutLog(), "stdout");
+      errLog = openLog(spec.stderrLog(), "stderr");
+      p = spawnOnLauncherThread(pb, spec, "stepwarden-launcher-" + SEQUENCE.incrementAndGet());
+    } catch (IOException | RuntimeException e) {
+      closeQuietly(outLog);
+      closeQuietly(errLog);
+      throw e;
+    }
+    TrainerProcess tp = new TrainerProcess(spec, listener, tools, argv, p, outLog, errLog);
+    LIVE.add(tp);
+    p.onExit().thenRun(tp::forgetIfFinished);
+    return tp;
+  }
+
+  /** Stops this trainer's tree (if still running) and launches {@code next} with the same listener. */
+  public TrainerProcess restart(LaunchSpec next) throws IOException {
+    stop();
+    return start(next, listener, tools);
+  }
+
+  /** The trainer's pid; with {@code setsid} also its process-group and session id. */
+  public long pid() {
+    return pid;
+  }
+
+  /** Whether the trainer process itself is still running (its group may outlive it). */
+  public boolean isAlive() {
+    return process.isAlive();
+  }
+
+  public LaunchSpec spec() {
+    return spec;
+  }
+
+  /** The argv actually executed, wrapping included: record it in the run directory. */
+  public List<String> launchedCommand() {
+    return launchedCommand;
+  }
+
+  /** True when the trainer was seen leading its own process group (setsid took effect). */
+  public boolean ownsProcessGroup() {
+    return ownGroupConfirmed;
+  }
+
+  /** True when the trainer was armed to be SIGKILLed should the supervisor JVM die. */
+  public boolean diesWithSupervisor() {
+    return tools.setpriv().isPresent();
+  }
+
+  /**
+   * Waits for the trainer to exit and both pumps to drain (every line delivered, logs closed).
+   *
+   * @return the exit code (128 + signal number when a signal ended it)
+   */
+  public int waitFor() throws InterruptedException {
+    int code = process.waitFor();
+    out.await();
+    err.await();
+    return code;
+  }
+
+  /** Like {@link #waitFor()} but gives up after {@code timeout}: empty when still running. */
+  public OptionalInt waitFor(Duration timeout) throws InterruptedException {
+    long deadline = System.nanoTime() + timeout.toNanos();
+    if (!process.waitFor(remaining(deadline), TimeUnit.NANOSECONDS)
+        || !out.await(remaining(deadline), TimeUnit.NANOSECONDS)
+        || !err.await(remaining(deadline), TimeUnit.NANOSECONDS)) {
+      return OptionalInt.empty();
+    }
+    return OptionalInt.of(process.exitValue());
+  }
+
+  /**
+   * Ends the trainer's whole tree: TERM, up to {@link LaunchSpec#stopGrace()} to exit, then KILL.
+   * Idempotent and thread-safe: later calls return the first call's result. If the calling thread
+   * is interrupted, the rest of the grace is skipped and KILL follows at once (the interrupt flag is
+   * kept); the stop itself always completes.
+   */
+  public StopResult stop() {
+    synchronized (stopLock) {
+      if (stopResult != null) {
+        return stopResult;
+      }
+      long t0 = System.nanoTime();
+      stopInterrupted = Thread.interrupted();
+      Set<ProcessHandle> tree = new LinkedHashSet<>();
+      collectTree(tree);
+      boolean wasAlive = !treeGone(tree);
+      boolean killed = false;
+      if (wasAlive) {
+        signalTree(tree, false);
+        if (stopInterrupted || !awaitGone(tree, spec.stopGrace())) {
+          collectTree(tree);
+          signalTree(tree, true);
+          killed = true;
+          awaitGone(tree, KILL_WAIT);
+        }
+      }
+      OptionalInt code = reap();
+      awaitPumps();
+      stopResult = new StopResult(wasAlive, killed, code, Duration.ofNanos(System.nanoTime() - t0));
+      LIVE.remove(this);
+      if (stopInterrupted) {
+        Thread.currentThread().interrupt();
+      }
+      return stopResult;
+    }
+  }
+
+  /** Lines handed to the listener so far, both streams. */
+  public long linesRead() {
+    return out.lines() + err.lines();
+  }
+
+  public long linesRead(TrainerStream stream) {
+    return stream == TrainerStream.STDOUT ? out.lines() : err.lines();
+  }
+
+  /** Lines longer than {@link LaunchSpec#maxLineChars()} that were handed over cut. */
+  public long oversizedLines() {
+    return out.oversized() + err.oversized();
+  }
+
+  /** The first listener exception or log I/O error the pumps survived, if any. */
+  public Optional<Throwable> firstPumpFailure() {
+    return Optional.ofNullable(firstFailure.get());
+  }
+
+  /** Stops the tree when anything of it still runs; otherwise just records the outcome. */
+  @Override
+  public void close() {
+    stop();
+  }
+
+  @Override
+  public String toString() {
+    return "TrainerProcess[pid=" + pid + ", alive=" + isAlive() + ", command=" + spec.command() + "]";
+  }
+
+  // ---- launch ----
+
+  /**
+   * Forks on a fresh thread that stays alive until the trainer exits: that thread is the trainer's
+   * parent for PR_SET_PDEATHSIG (see the design note).
+   */
+  private static Process spawnOnLauncherThread(ProcessBuilder pb, LaunchSpec spec, String name)
+      throws IOException {
+    CompletableFuture<Process> started = new CompletableFuture<>();
+    Thread launcher = new Thread(() -> {
+      Process p;
+      try {
+        p = pb.start();
+      } catch (Throwable e) {
+        started.completeExceptionally(e);
+        return;
+      }
+      started.complete(p);
+      while (true) {
+        try {
+          p.waitFor();
+          return;
+        } catch (InterruptedException e) {
+          // Nobody should interrupt us; leaving early would SIGKILL the trainer.
+        }
+      }
+    }, name);
+    launcher.setDaemon(true);
+    launcher.start();
+    boolean interrupted = false;
+    try {
+      while (true) {
+        try {
+          return started.get();
+        } catch (InterruptedException e) {
+          interrupted = true; // the fork takes milliseconds; never leave a trainer untracked
+        } catch (ExecutionException e) {
+          Throwable c = e.getCause();
+          throw new IOException("could not start the trainer " + spec.command() + " in "
+              + spec.workingDirectory() + ": " + c.getMessage(), c);
+        }
+      }
+    } finally {
+      if (interrupted) {
+        Thread.currentThread().interrupt();
+      }
+    }
+  }
+
+  /**
+   * The wrappers exec the program themselves, so a missing program would only surface as an exit
+   * code: look it up first, the way execvp will (the trainer's PATH, relative to its directory).
+   */
+  static void checkProgram(LaunchSpec spec) throws IOException {
+    String program = spec.command().get(0);
+    Path wd = spec.workingDirectory();
+    if (program.indexOf('/') >= 0) {
+      Path p = wd.resolve(program);
+      if (!Files.isRegularFile(p) || !Files.isExecutable(p)) {
+        throw new IOException("trainer program " + p + (Files.exists(p)
+            ? " is not an executable file; check its mode (chmod +x)"
+            : " does not exist; check the command's first element"));
+      }
+      return;
+    }
+    String path = spec.environment().containsKey("PATH")
+        ? spec.environment().get("PATH") : System.getenv("PATH");
+    if (path == null) {
+      path = "/bin:/usr/bin"; // glibc's execvp default
+    }
+    for (String dir : path.split(":", -1)) {
+      Path p = (dir.isEmpty() ? wd : wd.resolve(dir)).resolve(program);
+      if (Files.isRegularFile(p) && Files.isExecutable(p)) {
+        return;
+      }
+    }
+    throw new IOException("trainer program '" + program + "' was not found on the trainer's PATH ("
+        + path + "); give an absolute path or add its directory to PATH in the environment");
+  }
+
+  private static OutputStream openLog(Optional<Path> file, String what) throws IOException {
+    if (file.isEmpty()) {
+      return null;
+    }
+    Path p = file.get();
+    try {
+      if (Files.notExists(p)) {
+        try {
+          Files.createFile(p, PosixFilePermissions.asFileAttribute(
+              EnumSet.of(PosixFilePermission.OWNER_READ, PosixFilePermission.OWNER_WRITE)));
+        } catch (FileAlreadyExistsException raced) {
+          // someone else created it a moment ago: append to it
+        } catch (UnsupportedOperationException notPosix) {
+          // no POSIX modes on this file system: FileOutputStream creates it below
+        }
+      }
+      return new FileOutputStream(p.toFile(), true); // an existing file keeps its mode
+    } catch (IOException e) {
+      throw new IOException("cannot open the " + what + " log " + p + ": " + e
+          + "; check the directory's permissions and free space", e);
+    }
+  }
+
+  /** Waits (briefly) until setsid has run, so that the trainer leads its own group from now on. */
+  private boolean awaitOwnGroup() {
+    long deadline = System.nanoTime() + GROUP_CONFIRM_WAIT.toNanos();
+    long sleepMicros = 200;
+    while (System.nanoTime() < deadline) {
+      Optional<ProcessGroups.Stat> s = ProcessGroups.stat(pid);
+      if (s.isEmpty() || !s.get().running()) {
+        return false;
+      }
+      if (s.get().pgrp() == pid) {
+        return true;
+      }
+      try {
+        TimeUnit.MICROSECONDS.sleep(sleepMicros);
+      } catch (InterruptedException e) {
+        Thread.currentThread().interrupt();
+        return false;
+      }
+      sleepMicros = Math.min(sleepMicros * 2, 20_000);
+    }
+    return false;
+  }
+
+  // ---- stop ----
+
+  /** Adds the trainer's current descendants (only reachable while the trainer lives). */
+  private void collectTree(Set<ProcessHandle> tree) {
+    if (process.isAlive()) {
+      process.descendants().forEach(tree::add);
+    }
+  }
+
+  private boolean treeGone(Set<ProcessHandle> tree) {
+    if (process.isAlive()) {
+      return false;
+    }
+    if (groupMode && ProcessGroups.hasRunningMember(pid)) {
+      return false;
+    }
+    for (ProcessHandle h : tree) {
+      if (ProcessGroups.isRunning(h)) {
+        return false;
+      }
+    }
+    return true;
+  }
+
+  private void signalTree(Set<ProcessHandle> tree, boolean kill) {
+    if (groupMode) {
+      ProcessGroups.signalGroup(tools, pid, kill);
+    }
+    // Signal individually only what the group signal missed: one TERM each, never two (some
+    // trainers treat a second TERM as "abandon the checkpoint and quit now").
+    if (process.isAlive() && !inOurGroup(pid)) {
+      ProcessGroups.signal(process.toHandle(), kill);
+    }
+    for (ProcessHandle h : tree) {
+      if (ProcessGroups.isRunning(h) && !inOurGroup(h.pid())) {
+        ProcessGroups.signal(h, kill);
+      }
+    }
+  }
+
+  private boolean inOurGroup(long member) {
+    return groupMode
+        && ProcessGroups.stat(member).map(s -> s.pgrp() == pid).orElse(false);
+  }
+
+  /**
+   * Polls until the tree is gone or the wait is over; returns whether it is gone. An interrupt
+   * ends the wait early (recorded in {@code stopInterrupted}); the KILL phase is never cut short
+   * by a repeat because the flag is consumed here.
+   */
+  private boolean awaitGone(Set<ProcessHandle> tree, Duration wait) {
+    long deadline = System.nanoTime() + wait.toNanos();
+    long sleepMillis = 5;
+    boolean grace = !stopInterrupted;
+    while (!treeGone(tree)) {
+      if (System.nanoTime() >= deadline) {
+        return false;
+      }
+      try {
+        process.waitFor(Math.min(sleepMillis, Math.max(1, remaining(deadline) / 1_000_000)),
+            TimeUnit.MILLISECONDS);
+      } catch (InterruptedException e) {
+        stopInterrupted = true;
+        if (grace) {
+          return false;
+        }
+      }
+      collectTree(tree);
+      sleepMillis = Math.min(sleepMillis * 2, 50);
+    }
+    return true;
+  }
+
+  private OptionalInt reap() {
+    try {
+      if (process.waitFor(KILL_WAIT.toMillis(), TimeUnit.MILLISECONDS)) {
+        return OptionalInt.of(process.exitValue());
+      }
+    } catch (InterruptedException e) {
+      stopInterrupted = true;
+    }
+    return process.isAlive() ? OptionalInt.empty() : OptionalInt.of(process.exitValue());
+  }
+
+  private void awaitPumps() {
+    long deadline = System.nanoTime() + PUMP_WAIT.toNanos();
+    try {
+      out.await(remaining(deadline), TimeUnit.NANOSECONDS);
+      err.await(remaining(deadline), TimeUnit.NANOSECONDS);
+    } catch (InterruptedException e) {
+      stopInterrupted = true;
+    }
+  }
+
+  // ---- bookkeeping ----
+
+  private void forgetIfFinished() {
+    if (!groupMode || !ProcessGroups.hasRunningMember(pid)) {
+      LIVE.remove(this);
+    }
+  }
+
+  private void recordFailure(Throwable t) {
+    if (firstFailure.compareAndSet(null, t)) {
+      System.err.println("stepwarden: trainer " + pid + ": " + t.getMessage()
+          + (t.getCause() == null ? "" : " (" + t.getCause() + ")"));
+    }
+  }
+
+  private static void stopAllOnShutdown() {
+    List<Thread> stoppers = new ArrayList<>();
+    for (TrainerProcess tp : LIVE) {
+      Thread t = new Thread(tp::stop, "stepwarden-stop-" + tp.pid);
+      t.start();
+      stoppers.add(t);
+    }
+    for (Thread t : stoppers) {
+      try {
+        t.join();
+      } catch (InterruptedException e) {
+        return;
+      }
+    }
+  }
+
+  private static void startDaemon(Runnable r, String name) {
+    Thread t = new Thread(r, name);
+    t.setDaemon(true);
+    t.start();
+  }
+
+  private static long remaining(long deadline) {
+    return Math.max(0, deadline - System.nanoTime());
+  }
+
+  private static void closeQuietly(OutputStream s) {
+    if (s != null) {
+      try {
+        s.close();
+      } catch (IOException ignored) {
+        // already failing; the first error is the one reported
+      }
+    }
+  }
+}
