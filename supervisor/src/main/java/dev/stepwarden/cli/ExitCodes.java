@@ -19,13 +19,12 @@ public final class ExitCodes {
   /** The guard file (or another configuration) is invalid. */
   public static final int CONFIG = 78;
 
-  static final String TABLE = String.join("%n",
-      "Exit codes:",
-      "  0   the trainer finished normally",
-      "  3   stopped early by a guard (a success: the best checkpoint is named)",
-      "  4   gave up (a limit ran out: rewinds, crash restarts, floor reached while diverging)",
-      "  2   usage error",
-      "  78  configuration error (the guard file names the line and column)",
-      "  1   internal error",
-      "  130 interrupted by SIGINT (143 for SIGTERM); the trainer's whole tree is stopped first");
+  static final String TABLE = "Exit codes:%n"
+      + "  0   the trainer finished normally%n"
+      + "  3   stopped early by a guard (a success: the best checkpoint is named)%n"
+      + "  4   gave up (a limit ran out: rewinds, crash restarts, floor reached while diverging)%n"
+      + "  2   usage error%n"
+      + "  78  configuration error (the guard file names the line and column)%n"
+      + "  1   internal error%n"
+      + "  130 interrupted by SIGINT (143 for SIGTERM); the trainer's whole tree is stopped first";
 }

@@ -11,6 +11,8 @@ import java.nio.file.StandardCopyOption;
 import java.nio.file.StandardOpenOption;
 import java.util.LinkedHashMap;
 import java.util.Map;
+import java.util.Set;
+import java.nio.file.attribute.PosixFilePermissions;
 import tools.jackson.databind.json.JsonMapper;
 
 /**
@@ -59,8 +61,10 @@ public final class ControlFile {
 
   private void write(String content) throws IOException {
     Path tmp = path.resolveSibling(path.getFileName() + ".tmp");
-    try (FileChannel ch = FileChannel.open(tmp, StandardOpenOption.CREATE,
-        StandardOpenOption.WRITE, StandardOpenOption.TRUNCATE_EXISTING)) {
+    Files.deleteIfExists(tmp); // our own temporary file, never the user's
+    try (FileChannel ch = FileChannel.open(tmp, Set.of(StandardOpenOption.CREATE_NEW,
+        StandardOpenOption.WRITE), PosixFilePermissions.asFileAttribute(
+            PosixFilePermissions.fromString("rw-------")))) {
       ByteBuffer buf = ByteBuffer.wrap(content.getBytes(StandardCharsets.UTF_8));
       while (buf.hasRemaining()) {
         ch.write(buf);

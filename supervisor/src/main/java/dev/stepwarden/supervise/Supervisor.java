@@ -64,10 +64,16 @@ public final class Supervisor {
       double bestValidation, long bestValidationStep) {}
 
   /** Options that are not part of the guard file. */
-  public record Options(Path runDir, boolean quiet, Clock clock, PrintStream console) {
+  public record Options(Path runDir, boolean quiet, Clock clock, PrintStream console,
+      RunObserver observer) {
     public Options {
       clock = clock == null ? Clock.systemUTC() : clock;
       console = console == null ? System.err : console;
+      observer = observer == null ? RunObserver.NONE : observer;
+    }
+
+    public Options(Path runDir, boolean quiet, Clock clock, PrintStream console) {
+      this(runDir, quiet, clock, console, null);
     }
   }
 
@@ -241,6 +247,7 @@ public final class Supervisor {
     f.put("skip_batches", skipBatches);
     audit.append("launch", f);
     lastMetricMillis = clock.millis();
+    options.observer().onLaunch(attempt, reason);
   }
 
   /** Fills {@code {name}} placeholders; the values are numbers and paths we produced ourselves. */
@@ -314,7 +321,10 @@ public final class Supervisor {
     writeNormalized(s);
     warnMissingKeys();
     Optional<Decision> d = engine.onSample(s);
+    options.observer().onSample(s, engine.rate());
+    options.observer().onLines(intake.lines(), intake.metricLines(), intake.ignoredLines());
     if (d.isPresent()) {
+      options.observer().onDecision(d.get());
       act(d.get());
     }
   }
@@ -605,8 +615,10 @@ public final class Supervisor {
     f.put("metric_lines", intake.metricLines());
     f.put("ignored_lines", intake.ignoredLines());
     audit.append("run-end", f);
-    return new Result(outcome, reason, dir.root(), audit.path(), interventions, engine.rate(),
+    Result r = new Result(outcome, reason, dir.root(), audit.path(), interventions, engine.rate(),
         best, engine.bestValidation(), engine.bestValidationStep());
+    options.observer().onEnd(r);
+    return r;
   }
 
   private void writeNormalized(Sample s) throws IOException {
