@@ -42,6 +42,12 @@ final class RunCommand implements Callable<Integer> {
   @Override
   public Integer call() {
     PrintWriter err = spec.commandLine().getErr();
+    if (command != null && !command.isEmpty() && command.get(0).startsWith("-")) {
+      // picocli hands unknown options to the positional command; a program never starts with '-'
+      err.println("stepwarden: unknown option '" + command.get(0) + "' for run; put the training"
+          + " command after '--'. Try 'stepwarden run --help'.");
+      return ExitCodes.USAGE;
+    }
     GuardFile g;
     try {
       g = GuardFiles.load(rules);

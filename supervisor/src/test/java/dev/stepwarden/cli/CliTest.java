@@ -1,0 +1,92 @@
+package dev.stepwarden.cli;
+
+import static org.assertj.core.api.Assertions.assertThat;
+
+import java.io.PrintWriter;
+import java.io.StringWriter;
+import java.nio.file.Files;
+import java.nio.file.Path;
+import java.util.Map;
+import org.junit.jupiter.api.Test;
+import org.junit.jupiter.api.io.TempDir;
+import tools.jackson.core.type.TypeReference;
+import tools.jackson.databind.json.JsonMapper;
+
+class CliTest {
+  record Out(int code, String out, String err) {}
+
+  static Out run(String... args) {
+    StringWriter o = new StringWriter();
+    StringWriter e = new StringWriter();
+    int code = Main.execute(args, new PrintWriter(o, true), new PrintWriter(e, true));
+    return new Out(code, o.toString(), e.toString());
+  }
+
+  @Test
+  void helpListsSubcommandsAndExitCodes() {
+    Out r = run("--help");
+    assertThat(r.code()).isZero();
+    assertThat(r.out()).contains("run", "check", "schema", "demo", "completion")
+        .contains("Exit codes:").contains("78").contains("stopped early");
+  }
+
+  @Test
+  void checkExplainsAValidFileAndRefusesAMisspeltKeyWithExit78(@TempDir Path tmp)
+      throws Exception {
+    Path good = tmp.resolve("good.yaml");
+    Files.writeString(good, GuardFilesSketch.TEXT);
+    Out ok = run("check", good.toString());
+    assertThat(ok.code()).as(ok.err()).isZero();
+    assertThat(ok.out()).contains("valid").contains("'flat-validation': when the best"
+        + " validation has not improved by 0.5 %");
+    Path bad = tmp.resolve("bad.yaml");
+    Files.writeString(bad, GuardFilesSketch.TEXT.replace("then_wait", "then_wiat"));
+    Out no = run("check", bad.toString());
+    assertThat(no.code()).isEqualTo(ExitCodes.CONFIG);
+    assertThat(no.err()).contains(bad + ":").contains("did you mean 'then_wait'?")
+        .doesNotContain("Exception");
+  }
+
+  @Test
+  void unknownOptionIsAUsageError() {
+    Out r = run("run", "--rules", "r.yaml", "--quite", "--", "python3", "train.py");
+    assertThat(r.code()).isEqualTo(ExitCodes.USAGE);
+    assertThat(r.err()).contains("unknown option '--quite'");
+  }
+
+  @Test
+  void schemaIsJsonThatNamesEveryTopLevelSectionAndDetector() {
+    Out r = run("schema");
+    assertThat(r.code()).isZero();
+    Map<String, Object> schema = JsonMapper.builder().build().readValue(r.out(),
+        new TypeReference<Map<String, Object>>() {});
+    assertThat(schema).containsEntry("additionalProperties", false);
+    assertThat(r.out()).contains("\"flattens\"", "\"rises\"", "\"creeps\"", "\"overfits\"",
+        "\"then_wait\"", "\"crash_restarts\"", "\"confirm_within\"");
+  }
+
+  @Test
+  void completionPrintsABashScript() {
+    Out r = run("completion");
+    assertThat(r.code()).isZero();
+    assertThat(r.out()).contains("complete -F").contains("stepwarden");
+  }
+
+  /** The guard-file sketch of the product brief, as a test fixture. */
+  static final class GuardFilesSketch {
+    static final String TEXT = String.join("\n",
+        "run:",
+        "  name: sensor-net",
+        "  command: [python3, train.py, --lr, \"{learning_rate}\"]",
+        "  learning_rate: 0.1",
+        "read: { from: stdout, format: json, series: { train: loss, validation: val_loss } }",
+        "guards:",
+        "  - name: flat-validation",
+        "    when: { flattens: { series: validation, over: 5, gain_below: 0.5% } }",
+        "    do: { scale: 0.5 }",
+        "    then_wait: 3",
+        "limits:",
+        "  learning_rate: { min: 1.0e-6, max: 1.0 }",
+        "");
+  }
+}

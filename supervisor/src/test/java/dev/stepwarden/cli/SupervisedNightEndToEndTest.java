@@ -1,0 +1,100 @@
+package dev.stepwarden.cli;
+
+import static org.assertj.core.api.Assertions.assertThat;
+
+import dev.stepwarden.audit.AuditReader;
+import java.nio.file.Files;
+import java.nio.file.Path;
+import java.util.List;
+import java.util.Map;
+import java.util.concurrent.TimeUnit;
+import org.junit.jupiter.api.Test;
+import org.junit.jupiter.api.io.TempDir;
+
+/**
+ * {@code stepwarden run} as a child process on the real demo trainer (a third process): the
+ * audit log must show a plateau guard lowering the too-large rate through the control file,
+ * with evidence, confirmed by the trainer.
+ */
+class SupervisedNightEndToEndTest {
+  @Test
+  void plateauGuardLowersAnOversizedRateThroughTheControlFile(@TempDir Path tmp)
+      throws Exception {
+    Path rules = tmp.resolve("night.yaml");
+    Files.writeString(rules, String.join("\n",
+        "run:",
+        "  name: e2e",
+        "  learning_rate: 3.0",
+        "  stop_grace: 5s",
+        "read: { format: json, series: { train: loss, validation: val_loss } }",
+        "steer: { by: control-file, confirm_within: 20s }",
+        "checkpoints: { watch: ckpt/step-*.ckpt }",
+        "guards:",
+        "  - name: flat-validation",
+        "    when: { flattens: { series: validation, over: 3, gain_below: 1% } }",
+        "    do: { scale: 0.5 }",
+        "limits:",
+        "  learning_rate: { min: 0.05, max: 3.0 }",
+        "  silence: 1m",
+        ""));
+    Path runDir = tmp.resolve("run");
+    Path out = tmp.resolve("out.txt");
+    Process p = ChildJvm.stepwarden(tmp, out, "run", "--rules", rules.toString(), "--run-dir",
+        runDir.toString(), "--quiet", "--", ChildJvm.java(), "-XX:+UseSerialGC", "-cp",
+        System.getProperty("java.class.path"), "dev.stepwarden.demo.DemoTrainer", "--lr",
+        "{learning_rate}", "--epochs", "16", "--checkpoint-dir", "ckpt").start();
+    assertThat(p.waitFor(120, TimeUnit.SECONDS)).as("run finished").isTrue();
+    String printed = Files.readString(out);
+    assertThat(p.exitValue()).as(printed).isIn(0, 3);
+
+    AuditReader.Contents audit = AuditReader.read(runDir.resolve("audit.jsonl"));
+    assertThat(audit.tornLastLine()).isFalse();
+    assertThat(audit.badLines()).isEmpty();
+    List<Map<String, Object>> decisions = audit.records().stream()
+        .filter(r -> "decision".equals(r.get("type"))).toList();
+    assertThat(decisions).isNotEmpty();
+    Map<String, Object> first = decisions.get(0);
+    assertThat(first.get("guard")).isEqualTo("flat-validation");
+    assertThat((String) first.get("evidence")).contains("has not improved by 1.00 %");
+    assertThat(first.get("rate_before")).isEqualTo(3.0);
+    assertThat(first.get("rate_after")).isEqualTo(1.5);
+    @SuppressWarnings("unchecked")
+    Map<String, Object> figures = (Map<String, Object>) first.get("figures");
+    assertThat(figures).containsKeys("best", "best_step", "window");
+    // The decision is on disk before its outcome, and the trainer confirmed the new rate.
+    long seq = ((Number) first.get("seq")).longValue();
+    assertThat(audit.records()).anySatisfy(r -> {
+      assertThat(r.get("type")).isEqualTo("outcome");
+      assertThat(((Number) r.get("decision_seq")).longValue()).isEqualTo(seq);
+    });
+    assertThat(audit.records()).anySatisfy(r -> {
+      assertThat(r.get("type")).isEqualTo("confirmed");
+      assertThat(((Number) r.get("decision_seq")).longValue()).isEqualTo(seq);
+    });
+    assertThat(Files.readString(runDir.resolve("control.json"))).contains("\"guard\":\"flat-validation\"");
+    Map<String, Object> end = audit.records().get(audit.records().size() - 1);
+    assertThat(end.get("type")).isEqualTo("run-end");
+    assertThat(printed).contains("audit log:").contains("run directory:");
+    assertThat(Files.readAllLines(runDir.resolve("metrics.jsonl"))).isNotEmpty();
+  }
+
+  @Test
+  void nonFiniteTrainingLossGivesUpWithExitFour(@TempDir Path tmp) throws Exception {
+    Path rules = tmp.resolve("nan.yaml");
+    Files.writeString(rules, "run: { learning_rate: 0.1 }\n"
+        + "read: { format: pairs, series: { train: loss } }\n");
+    Path runDir = tmp.resolve("run");
+    Process p = ChildJvm.stepwarden(tmp, tmp.resolve("out.txt"), "run", "--rules",
+        rules.toString(), "--run-dir", runDir.toString(), "--quiet", "--", "python3", "-c",
+        "import time\nfor i in range(3): print(f'step={i} loss=0.5', flush=True)\n"
+            + "print('step=3 loss=nan', flush=True)\ntime.sleep(30)").start();
+    assertThat(p.waitFor(60, TimeUnit.SECONDS)).isTrue();
+    assertThat(p.exitValue()).as(Files.readString(tmp.resolve("out.txt"))).isEqualTo(4);
+    AuditReader.Contents audit = AuditReader.read(runDir.resolve("audit.jsonl"));
+    assertThat(audit.records()).anySatisfy(r -> {
+      assertThat(r.get("type")).isEqualTo("decision");
+      assertThat(r.get("ending")).isEqualTo("give_up");
+      assertThat(r.get("step")).isEqualTo(3);
+    });
+  }
+}
