@@ -42,7 +42,10 @@ import java.util.concurrent.atomic.AtomicReference;
  * that forked the child exits, not the process. A trainer forked from a short-lived thread (a
  * request handler, a Quartz worker, a test) would be SIGKILLed the moment that thread ends. So
  * every trainer is forked by its own daemon launcher thread that then just waits for the trainer's
- * exit, keeping the parent-death binding until the trainer is gone.
+ * exit, keeping the parent-death binding until the trainer is gone. (setpriv arms the signal a
+ * moment after the fork; should the forking thread already be gone by then, the child has been
+ * handed to a sibling thread and the binding lands there, which is no safer. Likewise a supervisor
+ * that dies within that millisecond leaves the trainer unarmed.)
  *
  * <p><b>If the supervisor JVM is SIGKILLed</b> (or crashes, or is OOM-killed): the launcher
  * thread dies with it, so the kernel SIGKILLs the trainer (its pdeathsig). That signal reaches only
@@ -347,7 +350,7 @@ public final class TrainerProcess implements AutoCloseable {
     String program = spec.command().get(0);
     Path wd = spec.workingDirectory();
     if (program.indexOf('/') >= 0) {
-      Path p = wd.resolve(program);
+      Path p = wd.resolve(program).normalize();
       if (!Files.isRegularFile(p) || !Files.isExecutable(p)) {
         throw new IOException("trainer program " + p + (Files.exists(p)
             ? " is not an executable file; check its mode (chmod +x)"
