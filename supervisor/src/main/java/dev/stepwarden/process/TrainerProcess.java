@@ -81,9 +81,10 @@ import java.util.concurrent.atomic.AtomicReference;
  * outlives a SIGKILLed supervisor.
  *
  * <p><b>JDK pipe caveat.</b> When the trainer process itself exits, the JDK drains what is in the
- * pipe and closes it. Output written later by leftover group members is not captured, and those
- * writers get EPIPE. Until then a leftover that holds the pipe open silently keeps the pump, and so
- * {@link #waitFor()}, waiting; {@link #stop()} ends that.
+ * pipe and closes it at the pump's next read. Output written later by leftover group members is
+ * not captured, and those writers get EPIPE. A leftover that holds the pipe open but writes nothing
+ * keeps the pump's read, and so {@link #waitFor()}, waiting; {@link #stop()} ends that. Callers
+ * that must not hang use {@link #waitFor(Duration)} and then {@link #close()}.
  */
 public final class TrainerProcess implements AutoCloseable {
   private static final Duration KILL_WAIT = Duration.ofSeconds(5);
@@ -93,8 +94,12 @@ public final class TrainerProcess implements AutoCloseable {
   private static final AtomicInteger SEQUENCE = new AtomicInteger();
 
   static {
-    Runtime.getRuntime().addShutdownHook(
-        new Thread(TrainerProcess::stopAllOnShutdown, "stepwarden-trainer-shutdown"));
+    try {
+      Runtime.getRuntime().addShutdownHook(
+          new Thread(TrainerProcess::stopAllOnShutdown, "stepwarden-trainer-shutdown"));
+    } catch (IllegalStateException shuttingDown) {
+      // first used while the JVM is already exiting: nothing left to protect
+    }
   }
 
   private final LaunchSpec spec;
