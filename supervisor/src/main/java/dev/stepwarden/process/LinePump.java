@@ -27,6 +27,7 @@ final class LinePump implements Runnable, LineSplitter.Sink {
   private final LineSplitter splitter;
   private final CountDownLatch done = new CountDownLatch(1);
   private OutputStream log;
+  private boolean listenerFailed;
   private byte[] echoBuf;
   private int echoLen;
   private volatile long linesPublished;
@@ -98,8 +99,11 @@ final class LinePump implements Runnable, LineSplitter.Sink {
     try {
       listener.onLine(stream, text);
     } catch (RuntimeException e) {
-      failures.accept(new IllegalStateException("the line listener threw on " + name() + " line "
-          + splitter.lines() + "; the pump keeps draining", e));
+      if (!listenerFailed) { // report the first; a listener failing on every line costs no more
+        listenerFailed = true;
+        failures.accept(new IllegalStateException("the line listener threw on " + name()
+            + " line " + splitter.lines() + "; the pump keeps draining", e));
+      }
     }
     if (echoBuf != null) {
       if (echoLen + len + 1 > echoBuf.length) {

@@ -153,7 +153,8 @@ final class LineSplitter {
     for (int k = 1; k <= Math.min(4, len); k++) {
       int c = b[off + len - k] & 0xFF;
       if ((c & 0xC0) != 0x80) {
-        int need = c < 0xC0 ? 1 : c < 0xE0 ? 2 : c < 0xF0 ? 3 : 4;
+        // Only C2..F4 start a sequence; anything else is one malformed byte, kept as it is.
+        int need = c < 0xC2 || c > 0xF4 ? 1 : c < 0xE0 ? 2 : c < 0xF0 ? 3 : 4;
         return need > k ? len - k : len;
       }
     }

@@ -42,7 +42,10 @@ import java.util.concurrent.atomic.AtomicReference;
  * that forked the child exits, not the process. A trainer forked from a short-lived thread (a
  * request handler, a Quartz worker, a test) would be SIGKILLed the moment that thread ends. So
  * every trainer is forked by its own daemon launcher thread that then just waits for the trainer's
- * exit, keeping the parent-death binding until the trainer is gone.
+ * exit, keeping the parent-death binding until the trainer is gone. (setpriv arms the signal a
+ * moment after the fork; should the forking thread already be gone by then, the child has been
+ * handed to a sibling thread and the binding lands there, which is no safer. Likewise a supervisor
+ * that dies within that millisecond leaves the trainer unarmed.)
  *
  * <p><b>If the supervisor JVM is SIGKILLed</b> (or crashes, or is OOM-killed): the launcher
  * thread dies with it, so the kernel SIGKILLs the trainer (its pdeathsig). That signal reaches only
@@ -78,9 +81,10 @@ import java.util.concurrent.atomic.AtomicReference;
  * outlives a SIGKILLed supervisor.
  *
  * <p><b>JDK pipe caveat.</b> When the trainer process itself exits, the JDK drains what is in the
- * pipe and closes it. Output written later by leftover group members is not captured, and those
- * writers get EPIPE. Until then a leftover that holds the pipe open silently keeps the pump, and so
- * {@link #waitFor()}, waiting; {@link #stop()} ends that.
+ * pipe and closes it at the pump's next read. Output written later by leftover group members is
+ * not captured, and those writers get EPIPE. A leftover that holds the pipe open but writes nothing
+ * keeps the pump's read, and so {@link #waitFor()}, waiting; {@link #stop()} ends that. Callers
+ * that must not hang use {@link #waitFor(Duration)} and then {@link #close()}.
  */
 public final class TrainerProcess implements AutoCloseable {
   private static final Duration KILL_WAIT = Duration.ofSeconds(5);
@@ -90,8 +94,12 @@ public final class TrainerProcess implements AutoCloseable {
   private static final AtomicInteger SEQUENCE = new AtomicInteger();
 
   static {
-    Runtime.getRuntime().addShutdownHook(
-        new Thread(TrainerProcess::stopAllOnShutdown, "stepwarden-trainer-shutdown"));
+    try {
+      Runtime.getRuntime().addShutdownHook(
+          new Thread(TrainerProcess::stopAllOnShutdown, "stepwarden-trainer-shutdown"));
+    } catch (IllegalStateException shuttingDown) {
+      // first used while the JVM is already exiting: nothing left to protect
+    }
   }
 
   private final LaunchSpec spec;
@@ -347,7 +355,7 @@ public final class TrainerProcess implements AutoCloseable {
     String program = spec.command().get(0);
     Path wd = spec.workingDirectory();
     if (program.indexOf('/') >= 0) {
-      Path p = wd.resolve(program);
+      Path p = wd.resolve(program).normalize();
       if (!Files.isRegularFile(p) || !Files.isExecutable(p)) {
         throw new IOException("trainer program " + p + (Files.exists(p)
             ? " is not an executable file; check its mode (chmod +x)"
