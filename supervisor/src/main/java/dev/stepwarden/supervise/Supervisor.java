@@ -152,17 +152,14 @@ public final class Supervisor {
     if (finished) {
       return;
     }
-    interrupted = true;
-    TrainerProcess t = trainer;
-    StopResult r = t == null ? null : t.stop();
+    // Record first, then stop: the supervising thread closes the log once it sees the flag.
     try {
       synchronized (lock) {
         Map<String, Object> f = new LinkedHashMap<>();
         f.put("signal", signal);
         f.put("step", intake == null ? -1 : intake.lastStep());
-        f.put("trainer_stopped", r != null && r.wasAlive());
-        f.put("trainer_killed", r != null && r.killed());
         f.put("learning_rate", engine == null ? null : engine.rate());
+        f.put("action", "stopping the trainer's process group (TERM, grace, KILL)");
         if (audit != null) {
           audit.append("interrupted", f);
         }
@@ -170,6 +167,11 @@ public final class Supervisor {
       }
     } catch (IOException e) {
       options.console().println("stepwarden: " + e.getMessage());
+    }
+    interrupted = true;
+    TrainerProcess t = trainer;
+    if (t != null) {
+      t.stop();
     }
   }
 
@@ -430,7 +432,9 @@ public final class Supervisor {
     while (true) {
       Request req = requests.poll(TICK_MILLIS, TimeUnit.MILLISECONDS);
       if (interrupted) {
-        return result(RunOutcome.INTERRUPTED, "interrupted by a signal");
+        StopResult stop = trainer.stop(); // idempotent: waits for the hook's stop to finish
+        return result(RunOutcome.INTERRUPTED, "interrupted by a signal; the trainer was "
+            + (stop.killed() ? "killed after the grace" : "stopped"));
       }
       if (req instanceof Request.End end) {
         return end(end.decision());
