@@ -28,7 +28,7 @@ final class CreepDetector implements Detector {
   static final String NAME = "creeps";
 
   static final int DEFAULT_OVER = 8;
-  static final double DEFAULT_ALPHA = 0.005;
+  static final double DEFAULT_ALPHA = 0.001;
   static final double DEFAULT_MAX_REL_SLOPE_PER_EVAL = 0.002;
 
   private final String series;

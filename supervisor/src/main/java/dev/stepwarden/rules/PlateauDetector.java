@@ -33,7 +33,7 @@ final class PlateauDetector implements Detector {
 
   static final int DEFAULT_OVER = 5;
   static final double DEFAULT_MIN_REL_GAIN = 0.005;
-  static final double DEFAULT_ALPHA = 0.05;
+  static final double DEFAULT_ALPHA = 0.2;
 
   private final String series;
   private final int over;

@@ -10,8 +10,11 @@ import java.util.Optional;
  *
  * <p>With mhat_t the bias-corrected EMA of the series (decay {@code beta}, see {@link Ema}) and
  * best_t = min_{t' &lt;= t} mhat_t', the detector counts consecutive points with mhat_t &gt; k
- * best_t and fires while the count is at least {@code samples}. Smoothing and the run length both
- * keep a single noisy batch from firing it; the ratio makes the rule scale-free. It is meant for
+ * best_t <em>and</em> x_t &gt; k best_t, and fires while the count is at least {@code samples}.
+ * The second condition matters: after one very bad batch (say 20 x the loss) the EMA stays high
+ * for a few points by its own memory, and without it that single batch could fill the run on a
+ * noisy series. The smoothed best keeps the reference from being a lucky low batch; the ratio
+ * makes the rule scale-free. It is meant for
  * positive series (losses): when the best is 0 or negative the ratio is meaningless and it never
  * fires. Non-finite values are skipped (see {@link NonFiniteDetector}).
  *
@@ -25,7 +28,7 @@ final class SpikeDetector implements Detector {
   static final double DEFAULT_K = 3.0;
 
   static final int DEFAULT_SAMPLES = 3;
-  static final double DEFAULT_BETA = 0.5;
+  static final double DEFAULT_BETA = 0.3;
 
   private final String series;
   private final double k;
@@ -71,7 +74,7 @@ final class SpikeDetector implements Detector {
       best = smoothed;
       bestStep = step;
     }
-    if (best > 0 && smoothed > k * best) {
+    if (best > 0 && smoothed > k * best && value > k * best) {
       if (run == 0) {
         runStartStep = step;
       }
