@@ -28,7 +28,7 @@ final class SpikeDetector implements Detector {
   static final double DEFAULT_K = 3.0;
 
   static final int DEFAULT_SAMPLES = 3;
-  static final double DEFAULT_BETA = 0.3;
+  static final double DEFAULT_BETA = 0.2;
 
   private final String series;
   private final double k;

@@ -318,6 +318,11 @@ final class DetectorTrials {
       }
       String noise = noiseLabel(sigma, false);
       rows.add(new Rate("flattens", "validation descending", noise, judgedPlateau, spuriousPlateau));
+      rows.add(plateauAtTwiceTheGain(size, sigma, PlateauDetector.DEFAULT_MIN_REL_GAIN));
+      double scaledGain = Math.max(PlateauDetector.DEFAULT_MIN_REL_GAIN, 2.5 * sigma);
+      if (scaledGain > PlateauDetector.DEFAULT_MIN_REL_GAIN) {
+        rows.add(plateauAtTwiceTheGain(size, sigma, scaledGain));
+      }
       rows.add(new Rate("creeps", "validation descending", noise, judgedCreep, spuriousCreep));
       rows.add(new Rate("creeps", "validation flat", noise, judgedFlat, spuriousCreepFlat));
       for (OverfitDetector.Kind kind : OverfitDetector.Kind.values()) {
@@ -330,6 +335,30 @@ final class DetectorTrials {
                 spuriousOverfit[kind.ordinal()]));
       }
     }
+  }
+
+  /**
+   * Validation improving at a constant relative rate of exactly twice the gain limit per window
+   * (the edge of "clearly improving"), with the plateau detector's gain set to {@code gain}.
+   */
+  private static Rate plateauAtTwiceTheGain(Size size, double sigma, double gain) {
+    int over = PlateauDetector.DEFAULT_OVER;
+    int n = size.validationLength();
+    double perEval = Math.pow(1 - 2 * gain, 1.0 / over);
+    double[] clean = new double[n];
+    for (int t = 0; t < n; t++) {
+      clean[t] = 0.8 * Math.pow(perEval, t);
+    }
+    long judged = 0;
+    long spurious = 0;
+    for (int run = 0; run < size.validationRuns(); run++) {
+      double[] v = noisy(clean, sigma, false, new Random(88_000L + run + Math.round(sigma * 1e6)));
+      judged += n - over;
+      spurious +=
+          firings(new PlateauDetector(over, gain, PlateauDetector.DEFAULT_ALPHA), v).size();
+    }
+    return new Rate(
+        "flattens gain " + Figures.percent(gain), "validation at 2x gain/window", noiseLabel(sigma, false), judged, spurious);
   }
 
   // ---------------------------------------------------------------- delays
@@ -517,7 +546,7 @@ final class DetectorTrials {
   // ---------------------------------------------------------------- printing
 
   static String noiseLabel(double sigma, boolean heavy) {
-    return String.format(Locale.ROOT, "%s%.1f %%", heavy ? "t3 " : "", sigma * 100);
+    return (heavy ? "t3 " : "") + Figures.percent(sigma);
   }
 
   static String rateTable(List<Rate> rows) {
