@@ -20,6 +20,10 @@ import java.util.Optional;
  * <p>With over &lt;= 10 and no ties the p-value is exact; the smallest possible is 1/over!, so
  * alpha must be above it for the detector to be able to fire at all. Non-finite values skipped.
  *
+ * <p>Proposed defaults over = 8, alpha = 0.001, maxRelSlopePerEval = 0.2 %: about 0.75 spurious
+ * firings per 1000 evaluations on flat noise, none on fast descents, and a 0.1 %-per-evaluation
+ * creep under 0.05 % noise is found after 8 to 9 evaluations (measured by DetectorTrials).
+ *
  * <p>Figures: {@code window}, {@code s_statistic}, {@code p_value} (downward), {@code sen_slope}
  * (per evaluation), {@code level}, {@code relative_slope}, {@code limit_relative_slope}, {@code
  * first_step}, {@code last_step}.

@@ -15,6 +15,9 @@ import java.util.Optional;
  * needs a smaller alpha. Non-finite values are skipped. The window is judged on every point once
  * it is full.
  *
+ * <p>Proposed defaults window = 30, alpha = 1e-4: 0.02 to 0.05 spurious firings per 1000 points
+ * on flat or descending series with independent noise (measured by DetectorTrials).
+ *
  * <p>Figures: {@code window}, {@code s_statistic}, {@code z}, {@code p_value}, {@code exact},
  * {@code sen_slope} (per point), {@code first_step}, {@code last_step}, {@code first},
  * {@code last}.

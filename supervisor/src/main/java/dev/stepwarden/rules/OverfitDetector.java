@@ -18,6 +18,11 @@ import java.util.Optional;
  * ends only, GL at every evaluation. Lower is better and errors must be positive; non-finite or
  * non-positive values are skipped. Memory: one strip of training errors and a few scalars.
  *
+ * <p>Proposed defaults GL with threshold 5, strip 5 (PQ 0.75, UP 3 as alternatives). Measured by
+ * DetectorTrials: GL stays below 0.3 spurious firings per 1000 evaluations up to 1 % validation
+ * noise but fires often at 2 % (56 per 1000), where UP (1.0) or PQ (0.16) hold; PQ reacts slowly
+ * when the training values are noisy mini-batch losses, because noise inflates P_k.
+ *
  * <p>Figures: {@code kind}, {@code evaluation}, {@code validation}, {@code best}, {@code
  * best_step}, {@code generalization_loss}, then for PQ {@code training_progress}, {@code
  * progress_quotient}, for UP {@code successive_rises}, {@code previous_strip_end}; and {@code

@@ -24,6 +24,13 @@ import java.util.Optional;
  * it: the window's best m ignores a single rise, so the other over - 1 evaluations must also have
  * failed to improve. Only the scalar B and the window are kept. Non-finite values are skipped.
  *
+ * <p>Proposed defaults over = 5, minRelGain = 0.5 %, alpha = 0.2. Measured by DetectorTrials: with
+ * validation noise 0.2 % it fires within 3 evaluations of visibility in 99.8 % of plateaus and
+ * 0.07 times per 1000 evaluations on a clearly improving curve. The rule cannot tell a plateau
+ * from noise when the noise is comparable to the gain: keep minRelGain at about 2.5 x or more the
+ * relative noise of the validation series (at 0.5 % noise with a 0.5 % gain it fires 5.8 times
+ * per 1000 evaluations on an improving curve).
+ *
  * <p>Figures: {@code window}, {@code best}, {@code best_step}, {@code reference_best} (B),
  * {@code window_best} (m), {@code relative_gain}, {@code limit_relative_gain}, {@code
  * s_statistic}, {@code p_value} (downward), {@code latest}, {@code latest_step}.

@@ -18,13 +18,17 @@ import java.util.Optional;
  * positive series (losses): when the best is 0 or negative the ratio is meaningless and it never
  * fires. Non-finite values are skipped (see {@link NonFiniteDetector}).
  *
+ * <p>Proposed defaults k = 3, samples = 3, beta = 0.2 (measured by DetectorTrials on our own
+ * synthetic series): no spurious firing on descending or flat losses with up to 20 % noise, about
+ * 0.06 per 1000 samples with heavy-tailed (t3) noise, none from isolated 20 x batches; a jump or a
+ * geometric blow-up is caught within 3 samples of crossing 3 x the best (99.8 to 100 %).
+ *
  * <p>Figures: {@code smoothed}, {@code value}, {@code best}, {@code best_step}, {@code ratio},
  * {@code limit_ratio}, {@code samples}, {@code since_step}.
  */
 final class SpikeDetector implements Detector {
   static final String NAME = "rises";
 
-  /** Proposed defaults, measured by {@code DetectorTrials}. */
   static final double DEFAULT_K = 3.0;
 
   static final int DEFAULT_SAMPLES = 3;

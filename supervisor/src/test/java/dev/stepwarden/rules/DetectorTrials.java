@@ -23,8 +23,16 @@ import java.util.function.Supplier;
  * {@code over} evaluations after the last improving one, the first moment any rule of this shape
  * could know), and a few others for information.
  *
- * <p>Run: {@code java -cp <test-classpath> dev.stepwarden.rules.DetectorTrials [scale]} (scale 1
- * is the full run, about a minute; {@link DetectorTrialsTest} runs a small version).
+ * <p>Run the full measurement (about a minute on one core) from the repository root:
+ *
+ * <pre>
+ *   mvn -B -q -pl supervisor test-compile dependency:build-classpath \
+ *       -Dmdep.includeScope=test -Dmdep.outputFile=target/test.cp
+ *   java -cp supervisor/target/test-classes:supervisor/target/classes:$(cat supervisor/target/test.cp) \
+ *       dev.stepwarden.rules.DetectorTrials            # add "small" for the quick version
+ * </pre>
+ *
+ * {@link DetectorTrialsTest} runs the small version and checks the goals on it.
  */
 final class DetectorTrials {
   static final double GOAL_FALSE_ALARMS_PER_1000 = 1.0;
