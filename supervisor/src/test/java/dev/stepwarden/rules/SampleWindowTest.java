@@ -1,0 +1,36 @@
+package dev.stepwarden.rules;
+
+import static org.assertj.core.api.Assertions.assertThat;
+import static org.assertj.core.api.Assertions.assertThatThrownBy;
+
+import org.junit.jupiter.api.Test;
+
+class SampleWindowTest {
+
+  @Test
+  void keepsTheLastPointsOldestFirst() {
+    SampleWindow w = new SampleWindow(3);
+    for (int i = 1; i <= 5; i++) {
+      w.add(i * 10L, i);
+    }
+    assertThat(w.isFull()).isTrue();
+    double[] values = new double[3];
+    long[] steps = new long[3];
+    assertThat(w.copyValues(values)).isEqualTo(3);
+    w.copySteps(steps);
+    assertThat(values).containsExactly(3, 4, 5);
+    assertThat(steps).containsExactly(30, 40, 50);
+    assertThat(w.value(0)).isEqualTo(3);
+    assertThat(w.step(2)).isEqualTo(50);
+    w.clear();
+    assertThat(w.size()).isZero();
+    assertThatThrownBy(() -> w.value(0)).isInstanceOf(IndexOutOfBoundsException.class);
+  }
+
+  @Test
+  void rejectsEmptyCapacity() {
+    assertThatThrownBy(() -> new SampleWindow(0))
+        .isInstanceOf(IllegalArgumentException.class)
+        .hasMessageContaining("capacity");
+  }
+}
