@@ -19,7 +19,7 @@ import java.util.Optional;
  * smoothed}, {@code best_smoothed}, {@code step}.
  */
 final class ChanceLevelDetector implements Detector {
-  static final String NAME = "at_chance";
+  static final String NAME = "stuck_at_chance";
 
   static final double DEFAULT_TOLERANCE = 0.05;
   static final double DEFAULT_BETA = 0.9;

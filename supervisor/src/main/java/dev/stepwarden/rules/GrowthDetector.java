@@ -23,7 +23,7 @@ import java.util.Optional;
  * {@code last}.
  */
 final class GrowthDetector implements Detector {
-  static final String NAME = "grows";
+  static final String NAME = "climbs";
 
   static final int DEFAULT_WINDOW = 30;
   static final double DEFAULT_ALPHA = 1e-4;

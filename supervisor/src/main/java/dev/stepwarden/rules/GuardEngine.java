@@ -36,8 +36,15 @@ public final class GuardEngine {
 
   static final String BUILT_IN_NON_FINITE = "(non-finite train value)";
 
+  static final String UNDO_RAISE = "(undo raise)";
+
   private final GuardFile file;
   private final List<Armed> armed = new ArrayList<>();
+  /** Watches the training series so a rewind can go back to before the trouble began. */
+  private final OnsetLocator onset = new OnsetLocator(OnsetLocator.DEFAULT_WINDOW,
+      OnsetLocator.DEFAULT_ALLOWANCE, OnsetLocator.DEFAULT_THRESHOLD);
+  /** A raised rate on probation (bold driver): undone when the next window is worse. */
+  private Probation probation;
   private double rate;
   private int rewinds;
   private long samples;
@@ -80,6 +87,10 @@ public final class GuardEngine {
   /** Feeds one sample; returns the decision when a guard (or the safety net) fired. */
   public Optional<Decision> onSample(Sample sample) {
     samples++;
+    Double train = sample.value("train");
+    if (train != null && Double.isFinite(train)) {
+      onset.add(sample.step(), train);
+    }
     Double v = sample.value("validation");
     if (v != null && Double.isFinite(v)
         && (Double.isNaN(bestValidation) || v < bestValidation)) {
@@ -93,6 +104,10 @@ public final class GuardEngine {
         continue;
       }
       a.evaluations++;
+      if (train != null && a.detector instanceof OverfitDetector o
+          && !a.guard.when().series().equals("train")) {
+        o.offerTrain(sample.step(), train);
+      }
       // Every detector sees every point, even while resting, so its window stays current.
       Optional<Evidence> fired = a.detector.offer(sample.step(), value);
       if (decision != null || a.evaluations <= a.restUntil || fired.isEmpty()) {
@@ -104,8 +119,10 @@ public final class GuardEngine {
         decision = planned.get();
       }
     }
+    if (decision == null && probation != null) {
+      decision = probation.offer(sample).orElse(null);
+    }
     if (decision == null) {
-      Double train = sample.value("train");
       if (train != null && !Double.isFinite(train)) {
         Map<String, Object> figures = new LinkedHashMap<>();
         figures.put("value", String.valueOf(train));
@@ -162,6 +179,9 @@ public final class GuardEngine {
       note = "capped at the ceiling " + max;
       after = max;
     }
+    if (g.rewinds()) {
+      evidence = withOnset(evidence);
+    }
     return Optional.of(decision(g, s, evidence, after, Ending.CONTINUE, note));
   }
 
@@ -171,13 +191,88 @@ public final class GuardEngine {
         note);
   }
 
+  /** Adds the estimated onset of the trouble (backward CUSUM over the training series). */
+  private Evidence withOnset(Evidence e) {
+    Optional<OnsetLocator.Onset> o = onset.locate();
+    if (o.isEmpty()) {
+      return e;
+    }
+    Map<String, Object> figures = new LinkedHashMap<>(e.figures());
+    o.get().figures().forEach(figures::putIfAbsent);
+    return new Evidence(e.detector(), e.summary() + "; the rise began near step "
+        + o.get().onsetStep(), figures);
+  }
+
   private void apply(Decision d) {
+    double before = rate;
     rate = d.rateAfter();
     if (d.rewinds()) {
       rewinds++;
+      onset.reset();
     }
     for (Armed a : armed) {
       a.detector.reset();
+    }
+    if (d.guard().equals(UNDO_RAISE)) {
+      probation = null;
+    } else if (d.ending() == Ending.CONTINUE && rate > before && !d.rewinds()) {
+      Armed by = armed.stream().filter(a -> a.guard.name().equals(d.guard())).findFirst()
+          .orElseThrow();
+      int window = by.guard.when().params().get("over") instanceof Number n ? n.intValue() : 8;
+      probation = new Probation(by.guard.when().series(), window, before, d);
+    } else {
+      probation = null;
+    }
+  }
+
+  /**
+   * The bold-driver check (Vogl et al. 1988; Battiti 1989): a raised rate stays only if the next
+   * window of the watched series is no worse than the window that justified the raise; otherwise
+   * the rate goes back to what it was. We compare window means, which the noise of single
+   * evaluations cannot tip alone.
+   */
+  private final class Probation {
+    private final String series;
+    private final int window;
+    private final double previousRate;
+    private final double referenceMean;
+    private double sum;
+    private int seen;
+
+    Probation(String series, int window, double previousRate, Decision raise) {
+      this.series = series;
+      this.window = window;
+      this.previousRate = previousRate;
+      Object level = raise.evidence().figures().get("level");
+      this.referenceMean = level instanceof Number n ? n.doubleValue() : Double.NaN;
+    }
+
+    Optional<Decision> offer(Sample s) {
+      Double v = s.value(series);
+      if (v == null || !Double.isFinite(v)) {
+        return Optional.empty();
+      }
+      sum += v;
+      seen++;
+      if (seen < window) {
+        return Optional.empty();
+      }
+      double mean = sum / seen;
+      probation = null;
+      if (Double.isNaN(referenceMean) || mean <= referenceMean) {
+        return Optional.empty();
+      }
+      Map<String, Object> f = new LinkedHashMap<>();
+      f.put("window", seen);
+      f.put("mean_after_raise", mean);
+      f.put("mean_before_raise", referenceMean);
+      f.put("restored_rate", previousRate);
+      Evidence e = new Evidence("creeps", String.format(java.util.Locale.ROOT,
+          "%s averaged %.4g over %d evaluations after the raise, worse than %.4g before it;"
+              + " the raise is undone", series, mean, seen, referenceMean), f);
+      return Optional.of(new Decision(UNDO_RAISE, s.step(), s.wallMillis(), e,
+          List.of(new Action.SetRate(previousRate)), rate, previousRate, Ending.CONTINUE,
+          "bold driver: a raise that made things worse is taken back"));
     }
   }
 

@@ -12,7 +12,7 @@ import java.util.Optional;
  * <p>Figures: {@code step}, {@code value} (as the string NaN, Infinity or -Infinity).
  */
 final class NonFiniteDetector implements Detector {
-  static final String NAME = "non_finite";
+  static final String NAME = "breaks";
 
   private final String series;
 

@@ -34,7 +34,7 @@ import java.util.Optional;
  * first_step}, {@code last_step}.
  */
 final class OscillationDetector implements Detector {
-  static final String NAME = "oscillates";
+  static final String NAME = "wobbles";
 
   static final int DEFAULT_WINDOW = 40;
   static final double DEFAULT_MAX_AUTOCORR = -0.75;

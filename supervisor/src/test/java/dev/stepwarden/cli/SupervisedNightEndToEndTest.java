@@ -55,7 +55,8 @@ class SupervisedNightEndToEndTest {
     assertThat(decisions).isNotEmpty();
     Map<String, Object> first = decisions.get(0);
     assertThat(first.get("guard")).isEqualTo("flat-validation");
-    assertThat((String) first.get("evidence")).contains("has not improved by 1.00 %");
+    assertThat((String) first.get("evidence")).contains("has not improved by 1 % in 3 evaluations")
+        .contains("trend test p =");
     assertThat(first.get("rate_before")).isEqualTo(3.0);
     assertThat(first.get("rate_after")).isEqualTo(1.5);
     @SuppressWarnings("unchecked")

@@ -23,7 +23,7 @@ class ChanceLevelDetectorTest {
     }
     assertThat(firstStep).isEqualTo(1000);
     Evidence e = first.orElseThrow();
-    assertThat(e.detector()).isEqualTo("at_chance");
+    assertThat(e.detector()).isEqualTo("stuck_at_chance");
     assertThat((double) e.figures().get("chance_level")).isCloseTo(2.302585, within(1e-6));
     assertThat(e.figures())
         .containsEntry("classes", 10)

@@ -215,7 +215,7 @@ final class DetectorTrials {
     int n = size.trainLength();
     double[] descending = descending(n, 0.3, 2.0, n / 8.0);
     double[] flat = constant(n, 0.5);
-    List<String> names = List.of("rises", "grows", "oscillates", "non_finite", "at_chance");
+    List<String> names = List.of("rises", "climbs", "wobbles", "breaks", "stuck_at_chance");
     List<Supplier<Detector>> makers =
         List.of(
             DetectorTrials::spike,
@@ -245,14 +245,14 @@ final class DetectorTrials {
           }
           judged += n;
           for (int d = 0; d < names.size(); d++) {
-            if (shape == 1 && names.get(d).equals("at_chance")) {
+            if (shape == 1 && names.get(d).equals("stuck_at_chance")) {
               continue; // a flat loss of 0.5 is far below chance for 10 classes: not informative
             }
             spurious[d] += firings(makers.get(d).get(), x).size();
           }
         }
         for (int d = 0; d < names.size(); d++) {
-          if (shape == 1 && names.get(d).equals("at_chance")) {
+          if (shape == 1 && names.get(d).equals("stuck_at_chance")) {
             continue;
           }
           rows.add(new Rate(names.get(d), scenario, noiseLabel(sigma, heavy), judged, spurious[d]));
@@ -482,7 +482,7 @@ final class DetectorTrials {
         int fired = firstFiringFrom(growth(), x, onset, new int[1]);
         delays.add(fired < 0 ? null : fired - onset + 1);
       }
-      rows.add(new Delay("grows", "rise 1 %/sample", noiseLabel(sigma, false), delays, null));
+      rows.add(new Delay("climbs", "rise 1 %/sample", noiseLabel(sigma, false), delays, null));
     }
     // Sloshing: a bounce of amplitude A = 2 sigma (relative) on a flat level.
     for (double sigma : TRAIN_NOISE) {
@@ -499,7 +499,7 @@ final class DetectorTrials {
         delays.add(fired < 0 ? null : fired - onset + 1);
       }
       rows.add(
-          new Delay("oscillates", "bounce A = 2 sigma", noiseLabel(sigma, false), delays, null));
+          new Delay("wobbles", "bounce A = 2 sigma", noiseLabel(sigma, false), delays, null));
     }
     // Steady slow progress: validation falling 0.1 % per evaluation.
     for (double sigma : new double[] {0.0002, 0.0005, 0.001}) {

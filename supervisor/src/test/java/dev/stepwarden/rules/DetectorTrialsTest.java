@@ -15,7 +15,7 @@ import org.junit.jupiter.api.Test;
 class DetectorTrialsTest {
 
   private static final Set<String> TRAIN_DETECTORS =
-      Set.of("rises", "grows", "oscillates", "non_finite", "at_chance");
+      Set.of("rises", "climbs", "wobbles", "breaks", "stuck_at_chance");
 
   @Test
   void defaultsMeetTheFalseAlarmGoalOnDescendingAndFlatSeries() {

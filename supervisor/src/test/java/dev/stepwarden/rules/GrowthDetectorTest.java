@@ -27,7 +27,7 @@ class GrowthDetectorTest {
     }
     assertThat(t - 1).isBetween(1000, 1000 + GrowthDetector.DEFAULT_WINDOW);
     Evidence e = fired.orElseThrow();
-    assertThat(e.detector()).isEqualTo("grows");
+    assertThat(e.detector()).isEqualTo("climbs");
     assertThat(e.figures())
         .containsEntry("window", GrowthDetector.DEFAULT_WINDOW)
         .containsKeys("s_statistic", "z", "p_value", "exact", "sen_slope", "first_step", "last_step");

@@ -11,7 +11,7 @@ class NonFiniteDetectorTest {
   void firesOnNanAndBothInfinitiesWithStepAndValue() {
     NonFiniteDetector d = new NonFiniteDetector("train");
     Evidence nan = d.offer(4100, Double.NaN).orElseThrow();
-    assertThat(nan.detector()).isEqualTo("non_finite");
+    assertThat(nan.detector()).isEqualTo("breaks");
     assertThat(nan.figures()).containsEntry("step", 4100L).containsEntry("value", "NaN");
     assertThat(nan.summary()).isEqualTo("train is NaN at step 4100.");
     assertThat(d.offer(4200, Double.POSITIVE_INFINITY).orElseThrow().figures())

@@ -29,7 +29,7 @@ class OscillationDetectorTest {
     }
     assertThat(t).isEqualTo(OscillationDetector.DEFAULT_WINDOW); // as soon as the window is full
     Evidence e = fired.orElseThrow();
-    assertThat(e.detector()).isEqualTo("oscillates");
+    assertThat(e.detector()).isEqualTo("wobbles");
     assertThat((double) e.figures().get("diff_autocorr")).isLessThanOrEqualTo(-0.75);
     assertThat((double) e.figures().get("relative_net_change")).isLessThanOrEqualTo(0.02);
     assertThat(e.figures())
