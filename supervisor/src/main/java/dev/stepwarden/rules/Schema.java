@@ -28,12 +28,12 @@ public final class Schema {
     root.put("additionalProperties", false);
     root.put("required", List.of("run"));
     Map<String, Object> props = new LinkedHashMap<>();
-    props.put("run", object(Catalogue.RUN, Map.of()));
-    props.put("read", object(Catalogue.READ, Map.of()));
-    props.put("steer", object(Catalogue.STEER, Map.of()));
-    props.put("checkpoints", object(Catalogue.CHECKPOINTS, Map.of()));
+    props.put("run", object(Catalogue.RUN, ordered()));
+    props.put("read", object(Catalogue.READ, ordered()));
+    props.put("steer", object(Catalogue.STEER, ordered()));
+    props.put("checkpoints", object(Catalogue.CHECKPOINTS, ordered()));
     props.put("limits", object(Catalogue.LIMITS,
-        Map.of("learning_rate", object(Catalogue.RATE_LIMITS, Map.of()))));
+        ordered("learning_rate", object(Catalogue.RATE_LIMITS, ordered()))));
     Map<String, Object> guards = new LinkedHashMap<>();
     guards.put("type", "array");
     guards.put("description", "Evaluated in file order on each new sample of the series they"
@@ -47,13 +47,13 @@ public final class Schema {
     for (Catalogue.DetectorSpec d : Catalogue.DETECTORS.values()) {
       List<Key> keys = new ArrayList<>(d.params());
       keys.add(Key.text("series", d.defaultSeries(), "The series this detector watches."));
-      Map<String, Object> o = object(keys, Map.of());
+      Map<String, Object> o = object(keys, ordered());
       o.put("description", "Fires when " + d.doc() + ".");
       o.put("type", List.of("object", "null"));
       detectors.put(d.name(), o);
     }
     when.put("properties", detectors);
-    Map<String, Object> guard = object(Catalogue.GUARD, Map.of("when", when, "do", actions()));
+    Map<String, Object> guard = object(Catalogue.GUARD, ordered("when", when, "do", actions()));
     @SuppressWarnings("unchecked")
     List<String> req = new ArrayList<>((List<String>) guard.getOrDefault("required", List.of()));
     req.add("when");
@@ -72,17 +72,26 @@ public final class Schema {
     List<Object> oneOf = new ArrayList<>();
     oneOf.add(named);
     oneOf.add(single("scale", factor("Multiply the rate by this factor (0.5 or 0.5x).")));
-    oneOf.add(single("set_rate", Map.of("type", "number", "exclusiveMinimum", 0)));
+    oneOf.add(single("set_rate", ordered("type", "number", "exclusiveMinimum", 0)));
     Map<String, Object> skip = new LinkedHashMap<>();
     skip.put("type", "object");
     skip.put("additionalProperties", false);
-    skip.put("properties", Map.of("skip_batches", Map.of("type", "integer", "minimum", 0)));
+    skip.put("properties", ordered("skip_batches", ordered("type", "integer", "minimum", 0)));
     oneOf.add(single("rewind", skip));
-    Map<String, Object> one = Map.of("oneOf", oneOf);
+    Map<String, Object> one = ordered("oneOf", oneOf);
     Map<String, Object> a = new LinkedHashMap<>();
     a.put("description", "One action or a list: scale, set_rate, rewind, stop, give_up.");
-    a.put("oneOf", List.of(one, Map.of("type", "array", "minItems", 1, "items", one)));
+    a.put("oneOf", List.of(one, ordered("type", "array", "minItems", 1, "items", one)));
     return a;
+  }
+
+  /** Like Map.of, but in the order written: Map.of iterates in a per-JVM random order. */
+  private static Map<String, Object> ordered(Object... keysAndValues) {
+    Map<String, Object> m = new LinkedHashMap<>();
+    for (int i = 0; i < keysAndValues.length; i += 2) {
+      m.put((String) keysAndValues[i], keysAndValues[i + 1]);
+    }
+    return m;
   }
 
   private static Map<String, Object> single(String key, Map<String, Object> value) {
@@ -90,15 +99,15 @@ public final class Schema {
     o.put("type", "object");
     o.put("additionalProperties", false);
     o.put("required", List.of(key));
-    o.put("properties", Map.of(key, value));
+    o.put("properties", ordered(key, value));
     return o;
   }
 
   private static Map<String, Object> factor(String doc) {
     Map<String, Object> o = new LinkedHashMap<>();
     o.put("description", doc);
-    o.put("oneOf", List.of(Map.of("type", "number", "exclusiveMinimum", 0),
-        Map.of("type", "string", "pattern", "^[0-9.eE+-]+\\s*x$")));
+    o.put("oneOf", List.of(ordered("type", "number", "exclusiveMinimum", 0),
+        ordered("type", "string", "pattern", "^[0-9.eE+-]+\\s*x$")));
     return o;
   }
 
@@ -138,23 +147,23 @@ public final class Schema {
       }
       case STRING -> p.put("type", "string");
       case CHOICE -> p.put("enum", k.choices());
-      case DURATION -> p.put("oneOf", List.of(Map.of("type", "number", "minimum", 0),
-          Map.of("type", "string", "pattern", "^\\d+(\\.\\d+)?\\s*(ms|s|m|h|d)?$")));
+      case DURATION -> p.put("oneOf", List.of(ordered("type", "number", "minimum", 0),
+          ordered("type", "string", "pattern", "^\\d+(\\.\\d+)?\\s*(ms|s|m|h|d)?$")));
       case FRACTION -> p.put("oneOf", List.of(
-          Map.of("type", "number", "minimum", k.min(), "maximum", k.max()),
-          Map.of("type", "string", "pattern", "^[0-9.eE+-]+\\s*%$")));
+          ordered("type", "number", "minimum", k.min(), "maximum", k.max()),
+          ordered("type", "string", "pattern", "^[0-9.eE+-]+\\s*%$")));
       case FACTOR -> p.put("oneOf", List.of(
-          Map.of("type", "number", "minimum", k.min(), "maximum", k.max()),
-          Map.of("type", "string", "pattern", "^[0-9.eE+-]+\\s*x$")));
+          ordered("type", "number", "minimum", k.min(), "maximum", k.max()),
+          ordered("type", "string", "pattern", "^[0-9.eE+-]+\\s*x$")));
       case STRING_LIST -> p.put("type", "array");
       case STRING_MAP -> {
         p.put("type", "object");
-        p.put("additionalProperties", Map.of("type", "string"));
+        p.put("additionalProperties", ordered("type", "string"));
       }
       default -> throw new IllegalStateException(k.kind().toString());
     }
     if (k.kind() == Key.Kind.STRING_LIST) {
-      p.put("items", Map.of("type", "string"));
+      p.put("items", ordered("type", "string"));
       p.put("minItems", 1);
     }
     if (k.defaultValue() != null) {
