@@ -473,7 +473,8 @@ final class HtmlPage {
             + " fill=\"#fff\">%d</text>", px, TOP - 10, BLACK, px, TOP - 6, iv.number()));
         if (labels) {
           b.append(String.format(Locale.ROOT, "<text class=\"lab\" transform=\"translate(%.1f,%d)"
-              + " rotate(-90)\" text-anchor=\"end\">%s</text>", px - 4, TOP + 6,
+              + " rotate(-90)\" text-anchor=\"end\" paint-order=\"stroke\" stroke=\"#fff\""
+              + " stroke-width=\"3\">%s</text>", px - 4, TOP + 6,
               esc(iv.guard() + (iv.changesRate() ? " " + fmt(iv.rateBefore()) + "\u2192"
                   + fmt(iv.rateAfter()) : ""))));
         }

@@ -100,6 +100,36 @@ public final class RunReport {
     history = b.history;
   }
 
+  private RunReport(RunReport o, MetricsHistory h) {
+    dir = o.dir;
+    name = o.name;
+    startedAt = o.startedAt;
+    endedAt = o.endedAt;
+    outcome = o.outcome;
+    exitCode = o.exitCode;
+    reason = o.reason;
+    startRate = o.startRate;
+    finalRate = o.finalRate;
+    interventions = o.interventions;
+    events = o.events;
+    bestValidation = o.bestValidation;
+    bestValidationStep = o.bestValidationStep;
+    bestCheckpoint = o.bestCheckpoint;
+    lines = o.lines;
+    metricLines = o.metricLines;
+    ignoredLines = o.ignoredLines;
+    unconfirmed = o.unconfirmed;
+    records = o.records;
+    tornLastLine = o.tornLastLine;
+    badAuditLines = o.badAuditLines;
+    history = h;
+  }
+
+  /** The same facts drawn over another history (lets the drawing be tried on huge curves). */
+  RunReport withHistory(MetricsHistory h) {
+    return new RunReport(this, h);
+  }
+
   /** True when {@code dir} holds an audit log, i.e. is a run directory. */
   public static boolean isRunDirectory(Path dir) {
     return Files.isRegularFile(dir.resolve(RunDirectory.AUDIT));
