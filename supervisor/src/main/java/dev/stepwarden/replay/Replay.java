@@ -89,15 +89,20 @@ public final class Replay {
 
   /** Replays {@code file}, detecting how to read it. */
   public static Result run(GuardFile rules, Path file) throws IOException {
+    requireFile(file);
     return run(rules, file, detect(file));
   }
 
-  /** Replays {@code file} read as {@code input}. */
-  public static Result run(GuardFile rules, Path file, Input input) throws IOException {
+  private static void requireFile(Path file) throws IOException {
     if (!Files.isRegularFile(file)) {
       throw new IOException("cannot read " + file + ": no such file (give a run directory's "
           + "metrics.jsonl or a trainer log)");
     }
+  }
+
+  /** Replays {@code file} read as {@code input}. */
+  public static Result run(GuardFile rules, Path file, Input input) throws IOException {
+    requireFile(file);
     long start = System.nanoTime();
     GuardEngine engine = new GuardEngine(rules);
     ReadPlan plan = switch (input) {
