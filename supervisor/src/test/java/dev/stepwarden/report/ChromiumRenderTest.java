@@ -30,8 +30,9 @@ class ChromiumRenderTest {
   void demoPageRendersInHeadlessChromiumWithTwoChartsAnInterventionMarkerAndVisibleCurves()
       throws Exception {
     Optional<Path> chromium = findChromium();
-    assumeTrue(chromium.isPresent(), "chromium is not installed (apt-get install -y chromium):"
-        + " skipping the real-browser check of the HTML report");
+    assumeTrue(chromium.isPresent(), "chromium is not installed (apt-get install -y chromium,"
+        + " or point -Dstepwarden.chromium at it): skipping the real-browser check of the HTML"
+        + " report");
     Files.createDirectories(ARTIFACTS);
     Path html = ARTIFACTS.resolve("demo-report.html");
     Files.writeString(html, RunReport.load(DemoRun.dir()).html(), StandardCharsets.UTF_8);
@@ -68,7 +69,13 @@ class ChromiumRenderTest {
     assertThat(dom.output).contains("</table>");
   }
 
+  /** The browser: {@code -Dstepwarden.chromium=PATH} if given, else chromium on the PATH. */
   static Optional<Path> findChromium() {
+    String given = System.getProperty("stepwarden.chromium");
+    if (given != null && !given.isBlank()) {
+      Path p = Path.of(given);
+      return Files.isExecutable(p) ? Optional.of(p) : Optional.empty();
+    }
     String path = System.getenv().getOrDefault("PATH", "/usr/bin:/bin");
     for (String dir : path.split(File.pathSeparator)) {
       for (String name : List.of("chromium", "chromium-browser")) {
