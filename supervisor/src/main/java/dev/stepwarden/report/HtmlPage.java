@@ -53,8 +53,9 @@ final class HtmlPage {
         + r.exitCode().map(c -> " (exit " + c + ")").orElse("") + ": " + r.reason());
     fact(b, "Use", TextReport.best(r));
     fact(b, "When", TextReport.when(r));
+    int n = r.interventions().size();
     fact(b, "Rate", fmt(r.startRate()) + " at the start, " + fmt(r.finalRate()) + " at the end; "
-        + r.interventions().size() + " interventions");
+        + n + (n == 1 ? " intervention" : " interventions"));
     fact(b, "Counts", TextReport.counts(r).substring("Counts: ".length()));
     fact(b, "Audit log", TextReport.auditState(r).substring("Audit log: ".length()));
     b.append("</dl></section>\n");

@@ -67,7 +67,7 @@ final class TextReport {
     long confirmed = r.interventions().stream().filter(Intervention::confirmed).count();
     String lines = r.lines().map(n -> n + " lines read, " + r.metricLines().orElse(0L)
         + " with metrics, " + r.ignoredLines().orElse(0L) + " ignored")
-        .orElse("line counts unknown (no run-end record)");
+        .orElse("line counts were not recorded (the run-end record lacks them)");
     return "Counts: " + lines + "; " + confirmed + " rate changes confirmed by the trainer, "
         + r.unconfirmed() + " not confirmed.";
   }
