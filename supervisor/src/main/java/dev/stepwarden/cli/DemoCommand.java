@@ -75,7 +75,13 @@ final class DemoCommand implements Callable<Integer> {
       }
       yaml = in.readAllBytes();
     }
-    GuardFile g = GuardFiles.parse(yaml, Path.of("demo-night.yaml"));
+    // Keep the bundled guard file in the run directory, as every run does (replay needs it).
+    Path copy = runDir.toAbsolutePath().resolve("guards.yaml");
+    Files.createDirectories(copy.getParent());
+    if (!Files.exists(copy)) {
+      Files.write(copy, yaml);
+    }
+    GuardFile g = GuardFiles.parse(yaml, copy);
     Path work = runDir.toAbsolutePath().resolve("trainer");
     Files.createDirectories(work);
     List<String> cmd = new ArrayList<>();

@@ -128,25 +128,12 @@ final class PlateauDetector implements Detector {
     figures.put("p_value", mk.pDownward());
     figures.put("latest", value);
     figures.put("latest_step", step);
-    String summary =
-        series
-            + " "
-            + Figures.num(value)
-            + " has not improved by "
-            + Figures.percent(minRelGain)
-            + " in "
-            + n
-            + " evaluations (best before them "
-            + Figures.num(reference)
-            + " at step "
-            + referenceStep
-            + ", best since "
-            + Figures.num(windowBest)
-            + ", gain "
-            + Figures.percent(Math.max(0, gain))
-            + "); trend test p "
-            + Figures.p(mk.pDownward())
-            + ".";
+    // The sentence leads with the best value, which is what stopped improving.
+    String summary = "best " + series + " " + Figures.num(reference) + " (step " + referenceStep
+        + ") has not improved by " + Figures.percent(minRelGain) + " in " + n
+        + " evaluations (best since " + Figures.num(windowBest) + ", gain "
+        + Figures.percent(Math.max(0, gain)) + ", latest " + Figures.num(value)
+        + "); trend test p " + Figures.p(mk.pDownward()) + ".";
     return Optional.of(new Evidence(NAME, summary, figures));
   }
 

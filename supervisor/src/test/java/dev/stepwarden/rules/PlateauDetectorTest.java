@@ -47,8 +47,8 @@ class PlateauDetectorTest {
     assertThat((double) e.figures().get("p_value")).isCloseTo(0.5 + 11.0 / 120, within(1e-12));
     assertThat(e.summary())
         .isEqualTo(
-            "validation 0.701 has not improved by 0.5 % in 5 evaluations (best before them 0.7"
-                + " at step 4000, best since 0.699, gain 0.143 %); trend test p = 0.59.");
+            "best validation 0.7 (step 4000) has not improved by 0.5 % in 5 evaluations (best"
+                + " since 0.699, gain 0.143 %, latest 0.701); trend test p = 0.59.");
   }
 
   @Test
