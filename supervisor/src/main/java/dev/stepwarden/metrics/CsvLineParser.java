@@ -6,7 +6,7 @@ package dev.stepwarden.metrics;
  * Empty and non-numeric cells are passed over, so a file whose validation column is filled only
  * every few rows reads naturally. A row whose cells are all non-numeric text is taken as a new
  * header: a file that was truncated or rotated and starts over with its header re-reads it.
- * The separator is the header's first comma, tab or semicolon (comma when it has none).
+ * The separator is each header's first comma, tab or semicolon (comma when it has none).
  */
 final class CsvLineParser implements LineParser {
   private final KeyCache keys = new KeyCache();
@@ -41,6 +41,11 @@ final class CsvLineParser implements LineParser {
       }
       if (!anyText) {
         return false; // an empty row is not a header
+      }
+      char newSep = separator(line);
+      if (newSep != sep) {
+        sep = newSep; // a file that starts over may be written with another separator
+        n = split(line);
       }
       String[] h = new String[n];
       for (int i = 0; i < n; i++) {

@@ -223,15 +223,12 @@ final class JsonLineParser implements LineParser {
     if (Decimals.failed(v)) {
       throw STOP;
     }
-    if (!Double.isFinite(v)) {
-      // bare NaN / Infinity / -Infinity are accepted (Python's json writes them); nan/inf only
-      // inside strings, as in other readers
-      char first = line.charAt(start) == '-' || line.charAt(start) == '+'
-          ? line.charAt(start + 1) : line.charAt(start);
+    char first = line.charAt(start) == '-' || line.charAt(start) == '+'
+        ? line.charAt(start + 1) : line.charAt(start);
+    if (first > '9') {
+      // a bare word: NaN / Infinity / -Infinity are accepted (Python's json writes them);
+      // lower-case nan/inf only inside strings. 1e400 and the like overflow to an infinity.
       if (first != 'N' && first != 'I') {
-        throw STOP;
-      }
-      if (!(pos - start == 3 || pos - start == 8 || pos - start == 9)) {
         throw STOP;
       }
     }
