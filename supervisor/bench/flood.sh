@@ -52,8 +52,9 @@ guards:
     when: { rises: { series: train, above_best: 3.0, samples: 3 } }
     do: { scale: 0.5 }
 YAML
-OUT=$( { /usr/bin/time -f "%e %M" java -jar "$JAR" run --quiet --rules "$W/flood.yaml" \
-  --run-dir "$W/runs" -- cat "$F" >/dev/null 2>"$W/run.err"; } 2>&1 | tail -1) || true
+/usr/bin/time -o "$W/time.txt" -f "%e %M" java -jar "$JAR" run --quiet --rules "$W/flood.yaml" \
+  --run-dir "$W/runs" -- cat "$F" >/dev/null 2>"$W/run.err" || true
+OUT=$(tail -1 "$W/time.txt")
 T_RUN=${OUT% *}; RSS_KB=${OUT#* }
 echo "stepwarden run -- cat: ${T_RUN}s  $(rate "$T_RUN")  peak RSS $((RSS_KB / 1024)) MB"
 python3 -c "import sys; c,r,p=map(float,sys.argv[1:]); print(f'ratios: run/cat = {c/r:.1%} of the pipe rate; run vs python = {p/r:.1f}x')" \
