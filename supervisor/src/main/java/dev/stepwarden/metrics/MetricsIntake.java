@@ -2,23 +2,28 @@ package dev.stepwarden.metrics;
 
 import java.util.ArrayList;
 import java.util.HashMap;
-import java.util.LinkedHashMap;
+import java.util.HashSet;
 import java.util.List;
 import java.util.Map;
 import java.util.Objects;
+import java.util.Set;
 import java.util.TreeSet;
+import java.util.function.LongSupplier;
 import java.util.regex.Matcher;
 import java.util.regex.Pattern;
 
 /**
- * Turns trainer lines into {@link Sample}s following a {@link ReadPlan}.
+ * Turns the lines of one source into {@link Sample}s following a {@link ReadPlan}.
  *
- * <p>Design: the format parser hands flat key/value pairs to a reusable map; the intake picks the
- * step, epoch, reported rate and the configured series out of it. A line without any configured
- * series is counted as ignored (progress bars, warnings, tracebacks) but still updates the
- * reported rate and applied revision, which the steering layer uses to confirm a change. When the
- * trainer prints no step, steps are counted (one per line that carries a series). Not
- * thread-safe: one intake per source, driven by that source's thread or under the caller's lock.
+ * <p>Design: the format parser hands flat key/value pairs to a callback; the intake keeps only
+ * the keys it wants (step, epoch, reported rate, applied revision and the configured series) in
+ * a fixed slot array, so a line costs no map and no boxing until a {@link Sample} is made. A line
+ * without any configured series is counted as ignored (progress bars, warnings, tracebacks) but
+ * still updates the reported rate and applied revision, which the steering layer uses to confirm
+ * a change. When a line prints no step, the step is the shared axis's latest step (an
+ * {@code also} source, see {@link MetricsSources}) or, for the main source, counted (one per line
+ * that carries a series). Not thread-safe: one intake per source, driven by that source's thread
+ * or under the caller's lock.
  */
 public final class MetricsIntake {
   /** What one line said. {@code sample} is null when the line carried no configured series. */
@@ -32,23 +37,86 @@ public final class MetricsIntake {
     }
   }
 
+  private static final int KEYS_SEEN_MAX = 256;
+  private static final int STEP = 0;
+  private static final int EPOCH = 1;
+  private static final int RATE = 2;
+  private static final int REVISION = 3;
+  private static final int FIRST_SERIES = 4;
+
   private final ReadPlan plan;
   private final LineParser parser;
-  private final Map<String, Double> fields = new HashMap<>();
-  private final TreeSet<String> keysSeen = new TreeSet<>();
+  private final LongSupplier sharedStep;
+  /** Wanted key to slot indexes (one key may feed several slots, e.g. step and a series). */
+  private final Map<String, int[]> slots = new HashMap<>();
+  private final String[] seriesNames;
+  private final double[] values;
+  private final long[] stamp;
+  private final Set<String> keysSeen = new HashSet<>();
+  private final LineParser.Fields sink = this::put;
   private long lines;
   private long metricLines;
   private long ignored;
+  private long oversized;
   private long inferredStep;
   private long lastStep = -1;
 
   public MetricsIntake(ReadPlan plan) {
+    this(plan, null);
+  }
+
+  /**
+   * An intake whose lines without a step take {@code sharedStep} (the latest step on the run's
+   * axis) instead of counting their own; null to count.
+   */
+  MetricsIntake(ReadPlan plan, LongSupplier sharedStep) {
     this.plan = Objects.requireNonNull(plan, "plan");
+    this.sharedStep = sharedStep;
     this.parser = switch (plan.format()) {
       case JSON -> new JsonLineParser();
       case PAIRS -> new PairsLineParser();
       case PATTERN -> new PatternLineParser(plan.pattern(), groupNames(plan.pattern()));
+      case CSV -> new CsvLineParser();
     };
+    int n = FIRST_SERIES + plan.series().size();
+    values = new double[n];
+    stamp = new long[n];
+    seriesNames = plan.series().keySet().toArray(new String[0]);
+    want(plan.stepKey(), STEP);
+    want(plan.epochKey(), EPOCH);
+    want(plan.rateKey(), RATE);
+    want(ReadPlan.APPLIED_REVISION_KEY, REVISION);
+    int i = FIRST_SERIES;
+    for (String key : plan.series().values()) {
+      want(key, i++);
+    }
+  }
+
+  private void want(String key, int slot) {
+    if (key == null) {
+      return;
+    }
+    int[] old = slots.get(key);
+    int[] now = old == null ? new int[] {slot} : java.util.Arrays.copyOf(old, old.length + 1);
+    now[now.length - 1] = slot;
+    slots.put(key, now);
+  }
+
+  private void put(String key, double v) {
+    if (keysSeen.size() < KEYS_SEEN_MAX) {
+      keysSeen.add(key);
+    }
+    int[] s = slots.get(key);
+    if (s != null) {
+      for (int slot : s) {
+        values[slot] = v;
+        stamp[slot] = lines;
+      }
+    }
+  }
+
+  private boolean has(int slot) {
+    return stamp[slot] == lines;
   }
 
   /** Continues the step axis across a restart: inferred steps resume after {@code step}. */
@@ -57,50 +125,68 @@ public final class MetricsIntake {
     lastStep = Math.max(lastStep, step);
   }
 
+  /** Like {@link #accept(String, long)} for a line the reader cut at the line limit. */
+  public Reading accept(String line, long wallMillis, boolean cut) {
+    if (cut) {
+      oversized++;
+    }
+    return accept(line, wallMillis);
+  }
+
   public Reading accept(String line, long wallMillis) {
-    lines++;
-    fields.clear();
-    if (!parser.parse(line, fields::put)) {
+    lines++; // also the stamp of this line's slots
+    if (!parser.parse(line, sink)) {
       ignored++;
       return null;
     }
-    if (keysSeen.size() < 256) {
-      keysSeen.addAll(fields.keySet());
-    }
-    Map<String, Double> values = null;
-    for (Map.Entry<String, String> s : plan.series().entrySet()) {
-      Double v = fields.get(s.getValue());
-      if (v != null) {
-        if (values == null) {
-          values = new LinkedHashMap<>();
-        }
-        values.put(s.getKey(), v);
+    SeriesValues sv = null;
+    int count = 0;
+    for (int i = FIRST_SERIES; i < values.length; i++) {
+      if (has(i)) {
+        count++;
       }
     }
-    Double rate = plan.rateKey() == null ? null : fields.get(plan.rateKey());
-    Double revision = fields.get(ReadPlan.APPLIED_REVISION_KEY);
+    if (count > 0) {
+      String[] names = new String[count];
+      double[] vals = new double[count];
+      int k = 0;
+      for (int i = FIRST_SERIES; i < values.length; i++) {
+        if (has(i)) {
+          names[k] = seriesNames[i - FIRST_SERIES];
+          vals[k++] = values[i];
+        }
+      }
+      sv = new SeriesValues(names, vals);
+    }
+    boolean rate = has(RATE);
+    boolean revision = has(REVISION);
     Sample sample = null;
-    if (values != null) {
+    if (sv != null) {
       metricLines++;
-      Double stepValue = fields.get(plan.stepKey());
       long step;
-      if (stepValue != null && Double.isFinite(stepValue)) {
-        step = (long) (double) stepValue;
+      if (has(STEP) && Double.isFinite(values[STEP])) {
+        step = (long) values[STEP];
         inferredStep = Math.max(inferredStep, step);
+      } else if (sharedStep != null) {
+        step = Math.max(0, sharedStep.getAsLong());
       } else {
         step = ++inferredStep;
       }
       lastStep = step;
-      Double epoch = plan.epochKey() == null ? null : fields.get(plan.epochKey());
-      sample = new Sample(step, epoch == null ? Double.NaN : epoch, wallMillis, values);
+      sample = new Sample(step, has(EPOCH) ? values[EPOCH] : Double.NaN, wallMillis, sv);
     } else {
       ignored++;
     }
-    if (sample == null && rate == null && revision == null) {
+    if (sample == null && !rate && !revision) {
       return null;
     }
-    return new Reading(sample, rate == null ? Double.NaN : rate,
-        revision == null || !Double.isFinite(revision) ? -1 : (long) (double) revision);
+    double rev = values[REVISION];
+    return new Reading(sample, rate ? values[RATE] : Double.NaN,
+        !revision || !Double.isFinite(rev) ? -1 : (long) rev);
+  }
+
+  public ReadPlan plan() {
+    return plan;
   }
 
   public long lines() {
@@ -114,6 +200,11 @@ public final class MetricsIntake {
   /** Lines that carried none of the configured series. */
   public long ignoredLines() {
     return ignored;
+  }
+
+  /** Lines that arrived cut at the line limit (they are still read, up to the cut). */
+  public long oversizedLines() {
+    return oversized;
   }
 
   public long lastStep() {
@@ -133,7 +224,7 @@ public final class MetricsIntake {
 
   /** Keys seen in metric lines (up to 256), sorted, for the "never appeared" warning. */
   public List<String> keysSeen() {
-    return List.copyOf(keysSeen);
+    return List.copyOf(new TreeSet<>(keysSeen));
   }
 
   private static List<String> groupNames(Pattern p) {

@@ -15,8 +15,8 @@ final class PairsLineParser implements LineParser {
     Matcher m = PAIR.matcher(line);
     boolean any = false;
     while (m.find()) {
-      Double v = LineParser.number(m.group(2));
-      if (v != null) {
+      double v = Decimals.parse(line, m.start(2), m.end(2));
+      if (!Decimals.failed(v)) {
         out.put(m.group(1), v);
         any = true;
       }

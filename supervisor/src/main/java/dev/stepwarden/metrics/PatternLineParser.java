@@ -22,14 +22,25 @@ final class PatternLineParser implements LineParser {
     }
     boolean any = false;
     for (String g : groups) {
-      String text;
+      int from;
+      int to;
       try {
-        text = m.group(g);
+        from = m.start(g);
+        to = m.end(g);
       } catch (IllegalArgumentException e) {
         continue;
       }
-      Double v = text == null ? null : LineParser.number(text);
-      if (v != null) {
+      if (from < 0) {
+        continue;
+      }
+      while (from < to && Character.isWhitespace(line.charAt(from))) {
+        from++;
+      }
+      while (to > from && Character.isWhitespace(line.charAt(to - 1))) {
+        to--;
+      }
+      double v = Decimals.parse(line, from, to);
+      if (!Decimals.failed(v)) {
         out.put(g, v);
         any = true;
       }

@@ -23,7 +23,9 @@ public record Sample(long step, double epoch, long wallMillis, Map<String, Doubl
     if (values.isEmpty()) {
       throw new IllegalArgumentException("a sample needs at least one series value");
     }
-    values = Collections.unmodifiableMap(new LinkedHashMap<>(values));
+    if (!(values instanceof SeriesValues)) { // the intake's own map is immutable already
+      values = Collections.unmodifiableMap(new LinkedHashMap<>(values));
+    }
   }
 
   /** The value of {@code series} in this sample, or {@code null} when the line did not carry it. */

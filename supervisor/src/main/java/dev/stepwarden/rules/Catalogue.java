@@ -30,17 +30,39 @@ final class Catalogue {
   static final List<Key> READ = List.of(
       Key.choice("from", "stdout", List.of("stdout", "stderr"),
           "Which output stream of the trainer carries the metrics (ignored when 'file' is set)."),
-      Key.text("file", null, "Follow this file instead of an output stream (relative to workdir)."),
-      Key.choice("format", "json", List.of("json", "pairs", "pattern"),
-          "json: one JSON object a line; pairs: key=value or key: value words; pattern: your"
-              + " regular expression with named groups."),
+      Key.text("file", null, "Follow this file instead of an output stream (relative to workdir);"
+          + " rotation, truncation, late creation and deletion are survived."),
+      Key.choice("format", "json", List.of("json", "pairs", "pattern", "csv"),
+          "json: one JSON object a line (nested keys as a.b); pairs: key=value or key: value"
+              + " words; pattern: your regular expression with named groups; csv: a header line"
+              + " naming the columns, then rows."),
       Key.text("pattern", null, "The regular expression for format: pattern, with a named group"
           + " per key, e.g. (?<step>\\d+).*loss (?<loss>\\S+)."),
       Key.text("step", "step", "The trainer's key for the step counter."),
       Key.text("epoch", "epoch", "The trainer's key for the epoch."),
       Key.text("rate", "lr", "The trainer's key for the learning rate it is using."),
       Key.map("series", "Series name to the trainer's key; the names 'train' and 'validation'"
-          + " have their usual meaning. Default: {train: loss, validation: val_loss}."));
+          + " have their usual meaning. Default: {train: loss, validation: val_loss}."),
+      Key.integer("line_limit", 1 << 20, 16, 64 << 20, "Longest line read, in characters; the"
+          + " rest of a longer line is dropped and the line counted as oversized."));
+
+  /**
+   * The keys of one entry of {@code read.also}: a further source read at the same time, e.g.
+   * {@code also: [ { file: val.csv, format: csv, series: { validation: val_loss } } ]}.
+   */
+  static final List<Key> READ_ALSO = List.of(
+      Key.choice("from", "stdout", List.of("stdout", "stderr"),
+          "Which output stream carries this source's metrics (ignored when 'file' is set)."),
+      Key.text("file", null, "Follow this file (relative to workdir)."),
+      Key.choice("format", "json", List.of("json", "pairs", "pattern", "csv"),
+          "How this source's lines are written (as read.format)."),
+      Key.text("pattern", null, "The regular expression for format: pattern."),
+      Key.text("step", "step", "This source's key for the step; lines without it take the latest"
+          + " step of any source."),
+      Key.text("epoch", "epoch", "This source's key for the epoch."),
+      Key.text("rate", null, "This source's key for the learning rate in use, if it has one."),
+      Key.map("series", "Series name to this source's key (required; names must not repeat"
+          + " those of other sources)."));
 
   static final List<Key> STEER = List.of(
       Key.choice("by", "control-file", List.of("control-file", "restart"),

@@ -89,7 +89,53 @@ public final class GuardFiles {
   }
 
   private ReadPlan read(MapNode node) throws ConfigException {
-    Map<String, Object> v = values(node, Catalogue.READ, "read");
+    Map<String, Object> v = values(node, Catalogue.READ, "read", "also");
+    int lineLimit = (Integer) v.get("line_limit");
+    List<ReadPlan> also = new ArrayList<>();
+    ConfigNode alsoNode = node.entries.get("also");
+    if (alsoNode != null && !(alsoNode instanceof Scalar s && s.type == Scalar.Type.NULL)) {
+      if (!(alsoNode instanceof ListNode list)) {
+        throw fail(alsoNode, "read.also must be a list of sources, e.g. also: [ { file: val.csv,"
+            + " format: csv, series: { validation: val_loss } } ], not " + alsoNode.kind());
+      }
+      for (int i = 0; i < list.items.size(); i++) {
+        String where = "read.also[" + (i + 1) + "]";
+        MapNode m = map(list.items.get(i), where);
+        Map<String, Object> av = values(m, Catalogue.READ_ALSO, where);
+        if (stringMap(m, "series").isEmpty()) {
+          throw fail(m, where + " needs 'series': which of the guard file's series this source"
+              + " carries, e.g. series: { validation: val_loss }");
+        }
+        also.add(source(m, av, where, lineLimit, Map.of(), List.of()));
+      }
+    }
+    Map<String, String> dflt = new LinkedHashMap<>();
+    dflt.put("train", "loss");
+    dflt.put("validation", "val_loss");
+    if (!also.isEmpty() && stringMap(node, "series").isEmpty()) {
+      dflt.keySet().removeIf(n -> also.stream().anyMatch(a -> a.series().containsKey(n)));
+      if (dflt.isEmpty()) {
+        throw fail(node, "read.series is missing and the default series both come from"
+            + " read.also; give read.series for the main source");
+      }
+    }
+    Set<String> names = new HashSet<>(stringMap(node, "series").isEmpty() ? dflt.keySet()
+        : stringMap(node, "series").keySet());
+    for (int i = 0; i < also.size(); i++) {
+      for (String n : also.get(i).series().keySet()) {
+        if (!names.add(n)) {
+          ConfigNode at = ((ListNode) alsoNode).items.get(i);
+          throw fail(at, "series '" + n + "' is read from two sources; each series comes from"
+              + " one source: rename it in one of them");
+        }
+      }
+    }
+    return source(node, v, "read", lineLimit, dflt, also);
+  }
+
+  /** One source of a read section (the main one or an entry of read.also). */
+  private ReadPlan source(MapNode node, Map<String, Object> v, String where, int lineLimit,
+      Map<String, String> defaultSeries, List<ReadPlan> also) throws ConfigException {
     String fileName = (String) v.get("file");
     ReadPlan.Source source = fileName != null ? ReadPlan.Source.FILE
         : ReadPlan.Source.valueOf(((String) v.get("from")).toUpperCase(Locale.ROOT));
@@ -100,7 +146,7 @@ public final class GuardFiles {
     if (format == ReadPlan.Format.PATTERN) {
       if (patternText == null) {
         throw fail(node.entries.getOrDefault("format", node),
-            "format: pattern needs a 'pattern' key with a regular expression");
+            "format: pattern needs a 'pattern' key with a regular expression in " + where);
       }
       try {
         pattern = Pattern.compile(patternText);
@@ -114,9 +160,7 @@ public final class GuardFiles {
     }
     Map<String, String> series = stringMap(node, "series");
     if (series.isEmpty()) {
-      series = new LinkedHashMap<>();
-      series.put("train", "loss");
-      series.put("validation", "val_loss");
+      series = new LinkedHashMap<>(defaultSeries);
     }
     if (pattern != null) {
       Set<String> groups = namedGroups(patternText);
@@ -128,7 +172,8 @@ public final class GuardFiles {
       }
     }
     return new ReadPlan(source, fileName == null ? null : Path.of(fileName), format, pattern,
-        (String) v.get("step"), (String) v.get("epoch"), (String) v.get("rate"), series);
+        (String) v.get("step"), (String) v.get("epoch"), (String) v.get("rate"), series,
+        lineLimit, also);
   }
 
   private static Set<String> namedGroups(String regex) {
@@ -239,14 +284,15 @@ public final class GuardFiles {
     keys.add(Key.text("series", spec.defaultSeries(), "The series this detector watches."));
     Map<String, Object> v = values(params, keys, guard + "." + detector);
     String series = (String) v.remove("series");
-    if (!read.series().containsKey(series)) {
+    if (!read.allSeries().containsKey(series)) {
       ConfigNode at = params.entries.getOrDefault("series", params);
       throw fail(at, "guard '" + guard + "' watches series '" + series + "', but read.series"
-          + " names only " + read.series().keySet() + suggestion(series, read.series().keySet())
+          + " names only " + read.allSeries().keySet()
+          + suggestion(series, read.allSeries().keySet())
           + "; add it under read.series or pick one of those");
     }
-    if (detector.equals("overfits") && !(read.series().containsKey("train")
-        && read.series().containsKey("validation"))) {
+    if (detector.equals("overfits") && !(read.allSeries().containsKey("train")
+        && read.allSeries().containsKey("validation"))) {
       throw fail(m, "'overfits' compares the train and validation series; read.series must"
           + " name both");
     }

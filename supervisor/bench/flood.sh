@@ -1,0 +1,78 @@
+#!/bin/sh
+# Whole-process flood benchmark: the same generated JSON-lines file through
+#   1. cat FILE | wc -l                                (the pipe's line rate)
+#   2. python3: for line in sys.stdin: json.loads(line)
+#   3. IntakeFlood: cat FILE via the process layer -> intake -> guard engine (one JVM)
+#   4. stepwarden run --rules G -- cat FILE           (the whole supervisor, run dir and all)
+#   5. a Python trainer flooding stdout: to /dev/null vs under stepwarden run
+# Usage: supervisor/bench/flood.sh [LINES]   (default 5000000). Needs python3, /usr/bin/time.
+set -eu
+N=${1:-5000000}
+HERE=$(cd "$(dirname "$0")" && pwd)
+MOD=$(dirname "$HERE")
+W=$(mktemp -d "${TMPDIR:-/tmp}/stepwarden-flood.XXXXXX")
+trap 'rm -rf "$W"' EXIT
+F="$W/metrics.jsonl"
+
+cd "$MOD"
+mvn -B -q -DskipTests package dependency:build-classpath -Dmdep.outputFile=target/flood.classpath \
+  -Dmdep.includeScope=test >/dev/null
+CP="target/test-classes:target/classes:$(cat target/flood.classpath)"
+JAR=target/stepwarden.jar
+
+python3 - "$N" "$F" <<'PY'
+import json, math, random, sys
+n, path = int(sys.argv[1]), sys.argv[2]
+random.seed(1)
+with open(path, "w") as f:
+    for i in range(n):
+        loss = 2.0 * math.exp(-i / (n / 5)) + 0.01 * random.random()
+        f.write(json.dumps({"step": i, "epoch": i // 10000, "loss": loss, "lr": 0.001}) + "\n")
+PY
+echo "file: $F  lines: $N  bytes: $(wc -c < "$F")"
+
+rate() { python3 -c "import sys; print(f'{int(sys.argv[1])/float(sys.argv[2]):,.0f} lines/s')" "$N" "$1"; }
+secs() { /usr/bin/time -f %e "$@" 2>&1 >/dev/null | tail -1; }
+
+T_CAT=$( { /usr/bin/time -f %e sh -c "cat '$F' | wc -l >/dev/null"; } 2>&1 | tail -1)
+echo "cat | wc -l:          ${T_CAT}s  $(rate "$T_CAT")"
+
+T_PY=$( { /usr/bin/time -f %e python3 -c 'import sys, json
+for line in sys.stdin: json.loads(line)' < "$F"; } 2>&1 | tail -1)
+echo "python json.loads:    ${T_PY}s  $(rate "$T_PY")"
+
+echo "IntakeFlood (process layer + intake + guards, one JVM):"
+java -Xmx256m -cp "$CP" dev.stepwarden.metrics.IntakeFlood "$F"
+
+cat > "$W/flood.yaml" <<YAML
+run: { name: flood, learning_rate: 0.001 }
+read: { from: stdout, series: { train: loss } }
+guards:
+  - name: blow-up
+    when: { rises: { series: train, above_best: 3.0, samples: 3 } }
+    do: { scale: 0.5 }
+YAML
+/usr/bin/time -o "$W/time.txt" -f "%e %M" java -jar "$JAR" run --quiet --rules "$W/flood.yaml" \
+  --run-dir "$W/runs" -- cat "$F" >/dev/null 2>"$W/run.err" || true
+OUT=$(tail -1 "$W/time.txt")
+T_RUN=${OUT% *}; RSS_KB=${OUT#* }
+echo "stepwarden run -- cat: ${T_RUN}s  $(rate "$T_RUN")  peak RSS $((RSS_KB / 1024)) MB"
+python3 -c "import sys; c,r,p=map(float,sys.argv[1:]); print(f'ratios: run/cat = {c/r:.1%} of the pipe rate; run vs python = {p/r:.1f}x')" \
+  "$T_CAT" "$T_RUN" "$T_PY"
+
+cat > "$W/trainer.py" <<'PY'
+import json, sys, time
+n = int(sys.argv[1]); t = time.perf_counter(); w = sys.stdout.write
+for i in range(n):
+    w(json.dumps({"step": i, "loss": 1.0 / (i + 1), "lr": 0.001}) + "\n")
+sys.stdout.flush()
+print(f"trainer_seconds={time.perf_counter() - t:.3f}", file=sys.stderr)
+PY
+M=$((N / 5))
+A=$(python3 "$W/trainer.py" "$M" 2>&1 >/dev/null | sed 's/.*=//')
+java -jar "$JAR" run --quiet --rules "$W/flood.yaml" --run-dir "$W/runs2" -- python3 \
+  "$W/trainer.py" "$M" >/dev/null 2>"$W/run2.err" || true
+B=$(grep -ho 'trainer_seconds=[0-9.]*' "$W"/runs2/*/trainer.stderr.log 2>/dev/null | sed 's/.*=//' | tail -1)
+echo "trainer flooding $M lines: to /dev/null ${A}s, under stepwarden ${B:-?}s"
+[ -n "${B:-}" ] && python3 -c "import sys; a,b=map(float,sys.argv[1:]); print(f'trainer slowdown: {b/a-1:+.1%}')" "$A" "$B"
+exit 0

@@ -1,0 +1,89 @@
+package dev.stepwarden.metrics;
+
+import java.util.Map;
+import java.util.concurrent.TimeUnit;
+import org.openjdk.jmh.annotations.Benchmark;
+import org.openjdk.jmh.annotations.BenchmarkMode;
+import org.openjdk.jmh.annotations.Fork;
+import org.openjdk.jmh.annotations.Measurement;
+import org.openjdk.jmh.annotations.Mode;
+import org.openjdk.jmh.annotations.OutputTimeUnit;
+import org.openjdk.jmh.annotations.Scope;
+import org.openjdk.jmh.annotations.Setup;
+import org.openjdk.jmh.annotations.State;
+import org.openjdk.jmh.annotations.Warmup;
+import org.openjdk.jmh.infra.Blackhole;
+
+/** Lines per second of each reader, and of the whole intake, on typical trainer lines. */
+@State(Scope.Thread)
+@BenchmarkMode(Mode.Throughput)
+@OutputTimeUnit(TimeUnit.SECONDS)
+@Warmup(iterations = 3, time = 1)
+@Measurement(iterations = 5, time = 1)
+@Fork(1)
+public class ParserBench {
+  static final String[] SHORT = new String[64];
+  static final String[] REPR = new String[64];
+
+  static {
+    java.util.Random r = new java.util.Random(1);
+    for (int i = 0; i < 64; i++) {
+      double loss = 2.0 * Math.exp(-i / 20.0) + 0.01 * r.nextGaussian();
+      SHORT[i] = String.format(java.util.Locale.ROOT,
+          "{\"step\": %d, \"epoch\": %d, \"loss\": %.4f, \"lr\": 0.001}", 1000 + i, i / 10, loss);
+      REPR[i] = "{\"step\": " + (1000 + i) + ", \"epoch\": " + (i / 10) + ", \"loss\": "
+          + NumberExactnessTest.pythonRepr(loss) + ", \"lr\": 0.001}";
+    }
+  }
+
+  private final JsonLineParser fast = new JsonLineParser();
+  private final JacksonJsonLineParser jackson = new JacksonJsonLineParser();
+  private final PairsLineParser pairs = new PairsLineParser();
+  private MetricsIntake intake;
+  private int i;
+  private String[] pairLines;
+
+  @Setup
+  public void setup() {
+    intake = new MetricsIntake(new ReadPlan(ReadPlan.Source.STDOUT, null, ReadPlan.Format.JSON,
+        null, "step", "epoch", "lr", Map.of("train", "loss")));
+    pairLines = new String[64];
+    for (int k = 0; k < 64; k++) {
+      pairLines[k] = SHORT[k].replaceAll("[{}\"]", "").replace(": ", "=").replace(",", "");
+    }
+  }
+
+  private int next() {
+    return i = (i + 1) & 63;
+  }
+
+  @Benchmark
+  public void jsonShortNumbers(Blackhole bh) {
+    fast.parse(SHORT[next()], (k, v) -> bh.consume(v));
+  }
+
+  @Benchmark
+  public void jsonReprNumbers(Blackhole bh) {
+    fast.parse(REPR[next()], (k, v) -> bh.consume(v));
+  }
+
+  @Benchmark
+  public void jacksonShortNumbers(Blackhole bh) {
+    jackson.parse(SHORT[next()], (k, v) -> bh.consume(v));
+  }
+
+  @Benchmark
+  public void pairsShortNumbers(Blackhole bh) {
+    pairs.parse(pairLines[next()], (k, v) -> bh.consume(v));
+  }
+
+  @Benchmark
+  public Object intakeJsonShort() {
+    return intake.accept(SHORT[next()], 0L);
+  }
+
+  @Benchmark
+  public Object intakeJsonRepr() {
+    return intake.accept(REPR[next()], 0L);
+  }
+}
