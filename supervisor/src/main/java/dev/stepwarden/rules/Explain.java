@@ -24,6 +24,12 @@ public final class Explain {
       case FILE -> "the file " + f.read().file();
     } + " as " + f.read().format().name().toLowerCase(Locale.ROOT) + "; series "
         + f.read().series() + ", step key '" + f.read().stepKey() + "'.");
+    for (dev.stepwarden.metrics.ReadPlan also : f.read().also()) {
+      out.add("Also reads " + (also.source() == dev.stepwarden.metrics.ReadPlan.Source.FILE
+          ? "the file " + also.file() : "the trainer's " + also.source().name()
+              .toLowerCase(Locale.ROOT)) + " as " + also.format().name().toLowerCase(Locale.ROOT)
+          + "; series " + also.series() + ".");
+    }
     out.add(f.steer().by() == GuardFile.Steer.Method.RESTART
         ? "A new rate is applied by stopping the trainer and starting it again with it."
         : "A new rate is written to the control file; the trainer has "

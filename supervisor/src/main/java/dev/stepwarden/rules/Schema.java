@@ -29,7 +29,9 @@ public final class Schema {
     root.put("required", List.of("run"));
     Map<String, Object> props = new LinkedHashMap<>();
     props.put("run", object(Catalogue.RUN, ordered()));
-    props.put("read", object(Catalogue.READ, ordered()));
+    props.put("read", object(Catalogue.READ, ordered("also", ordered("type", "array",
+        "description", "Further sources read at the same time (e.g. validation in a CSV file).",
+        "items", object(Catalogue.READ_ALSO, ordered()))))));
     props.put("steer", object(Catalogue.STEER, ordered()));
     props.put("checkpoints", object(Catalogue.CHECKPOINTS, ordered()));
     props.put("limits", object(Catalogue.LIMITS,
