@@ -31,7 +31,7 @@ public final class Schema {
     props.put("run", object(Catalogue.RUN, ordered()));
     props.put("read", object(Catalogue.READ, ordered("also", ordered("type", "array",
         "description", "Further sources read at the same time (e.g. validation in a CSV file).",
-        "items", object(Catalogue.READ_ALSO, ordered()))))));
+        "items", object(Catalogue.READ_ALSO, ordered())))));
     props.put("steer", object(Catalogue.STEER, ordered()));
     props.put("checkpoints", object(Catalogue.CHECKPOINTS, ordered()));
     props.put("limits", object(Catalogue.LIMITS,
