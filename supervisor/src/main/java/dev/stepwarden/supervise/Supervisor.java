@@ -997,7 +997,7 @@ public final class Supervisor {
         b.append('"').append(Double.isNaN(v) ? "nan" : v > 0 ? "inf" : "-inf").append('"');
       }
     }
-    metricsOut.append(b).append('\n');
+    metricsOut.append(b).append("}\n");
   }
 
   private void flushMetrics() throws IOException {
