@@ -109,6 +109,7 @@ public final class CheckpointLedger {
   private final List<Entry> entries = new ArrayList<>();
   private final List<Notice> notices = new ArrayList<>();
   private long previousScanStep = -1;
+  private Path inUse;
 
   private static final class Sighting {
     long size;
@@ -423,7 +424,20 @@ public final class CheckpointLedger {
       }
     }
     previousScanStep = Math.min(previousScanStep, step); // the step axis goes back with the rewind
+    // Files the stopped trainer was still writing past the target belong to that branch too.
+    pending.entrySet().removeIf(p -> {
+      if (p.getValue().step > step) {
+        settled.put(p.getKey(), new long[] {p.getValue().size, p.getValue().mtime});
+        return true;
+      }
+      return false;
+    });
     return n;
+  }
+
+  /** The vault copy a running trainer was started from: never pruned while it is in use. */
+  public void inUse(Path vaultCopy) {
+    inUse = vaultCopy;
   }
 
   /**
@@ -444,7 +458,8 @@ public final class CheckpointLedger {
         .limit(vault.keep()).toList();
     for (int i = 0; i < entries.size(); i++) {
       Entry e = entries.get(i);
-      if (e.vault() == null || latest.contains(e) || best.filter(e::equals).isPresent()) {
+      if (e.vault() == null || latest.contains(e) || best.filter(e::equals).isPresent()
+          || e.vault().equals(inUse)) {
         continue;
       }
       if (vault.owns(e.vault())) {

@@ -338,6 +338,7 @@ public final class Supervisor {
         StandardCharsets.UTF_8, StandardOpenOption.APPEND);
     Optional<CheckpointLedger.Entry> target = chooseTarget(Long.MAX_VALUE);
     resumeFrom = target.map(e -> e.usable().toString()).orElse("");
+    ledgerInUse(target);
     currentStep = target.map(CheckpointLedger.Entry::step).orElse(-1L);
     if (target.isPresent()) {
       intake.continueAfter(target.get().step());
@@ -388,6 +389,12 @@ public final class Supervisor {
         ch.force(true);
       }
       return size - keep;
+    }
+  }
+
+  private void ledgerInUse(Optional<CheckpointLedger.Entry> target) {
+    if (ledger != null) {
+      ledger.inUse(target.map(CheckpointLedger.Entry::vault).orElse(null));
     }
   }
 
@@ -809,6 +816,7 @@ public final class Supervisor {
         target = chooseTarget(rl.targetStep());
       }
       resumeFrom = target.map(e -> e.usable().toString()).orElse("");
+      ledgerInUse(target);
       int abandoned = ledger == null ? 0
           : ledger.abandonAfter(target.map(CheckpointLedger.Entry::step).orElse(-1L));
       Map<String, Object> f = new LinkedHashMap<>();

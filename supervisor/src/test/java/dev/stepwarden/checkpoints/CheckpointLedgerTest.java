@@ -156,4 +156,26 @@ class CheckpointLedgerTest {
     assertThat(l.abandonAfter(100)).isEqualTo(2);
     assertThat(l.latestHealthyAtOrBefore(250)).map(CheckpointLedger.Entry::step).contains(100L);
   }
+
+  @Test
+  void theCopyARunningTrainerResumedFromIsNotPrunedAndLateFilesOfTheOldBranchAreDropped()
+      throws Exception {
+    CheckpointLedger l = new CheckpointLedger(work, "ckpt/*.pt",
+        new CheckpointVault(vaultDir(), 1, false), 0);
+    writeByRename(work.resolve("ckpt/step-100.pt"), "s100");
+    l.scan(100, 1, 1, true, 0);
+    CheckpointLedger.Entry target = l.scan(101, 1, 1, true, 1).get(0);
+    writeByRename(work.resolve("ckpt/step-150.pt"), "s150"); // the old trainer, seen once
+    l.scan(150, 1, 1, true, 2);
+    l.abandonAfter(100);
+    l.inUse(target.vault());
+    assertThat(l.scan(101, 1, 1, true, 3)).isEmpty(); // step-150 belongs to the old branch
+    for (int step : new int[] {110, 120}) {
+      writeByRename(work.resolve("ckpt/step-" + step + ".pt"), "s" + step);
+      l.scan(step, 1, 1, true, step);
+      l.scan(step + 1, 1, 1, true, step + 1);
+      l.prune();
+    }
+    assertThat(Files.exists(target.vault())).isTrue();
+  }
 }
