@@ -2,8 +2,8 @@ package dev.stepwarden.checkpoints;
 
 import java.io.IOException;
 import java.io.InputStream;
+import java.io.UncheckedIOException;
 import java.nio.file.FileSystems;
-import java.nio.file.FileVisitOption;
 import java.nio.file.Files;
 import java.nio.file.Path;
 import java.nio.file.PathMatcher;
@@ -14,45 +14,181 @@ import java.util.ArrayList;
 import java.util.Comparator;
 import java.util.HashMap;
 import java.util.HexFormat;
+import java.util.LinkedHashMap;
 import java.util.List;
 import java.util.Map;
+import java.util.Objects;
 import java.util.Optional;
+import java.util.regex.Matcher;
+import java.util.regex.Pattern;
 import java.util.stream.Stream;
 
 /**
  * The checkpoint ledger: which of the trainer's checkpoint files exist, when they were written,
- * at which step, and how the run stood then.
+ * at which step, how the run stood then, and where our vault copy is.
  *
- * <p>Design: the supervisor calls {@link #scan} periodically. A file matching the glob counts
- * once its size and modification time are unchanged between two scans (a trainer still writing
- * it must not be taken as a rewind target). A rewrite of the same path (a trainer that
- * overwrites {@code last.pt}) is a new entry. The ledger only reads the user's files; it never
- * deletes or modifies them.
+ * <p>Design:
+ * <ul>
+ *   <li><b>Where to look.</b> Only below the glob's fixed leading folders ({@code ckpt/} for
+ *       {@code ckpt/*.pt}), never the whole working directory, which may hold a data set of
+ *       millions of files; and only as deep as the glob reaches ({@code **} goes up to 16
+ *       levels). Symbolic links to folders are not followed.
+ *   <li><b>When a file counts.</b> Once its size and modification time have stayed the same for
+ *       the settle time, measured between scans: a trainer still writing must not give us a rewind
+ *       target. A rewrite of the same path (a trainer overwriting {@code last.pt}) is a new entry.
+ *   <li><b>Its step.</b> The step the trainer had reported when the file <em>first appeared</em>,
+ *       not when it settled, so "written before the onset" stays true for a large file that took a
+ *       while. When the file name carries a number that lies between the step of the previous scan
+ *       and the current one (a file named for its step), that number is taken: it is exact.
+ *   <li><b>Baseline.</b> Files present before the trainer starts (an earlier run's leftovers) are
+ *       ignored until they change: their step is unknown.
+ *   <li><b>Vault.</b> Each healthy entry is kept in the {@link CheckpointVault} the moment it
+ *       settles; its hash is taken of the vault copy, the bytes a rewind will use. {@link #prune}
+ *       keeps the best and the latest K healthy copies. An in-place overwrite of a linked file is
+ *       recognised by its unchanged file identity: that entry is marked damaged and the vault
+ *       switches to copies.
+ * </ul>
+ * The ledger reads the user's files but never deletes or modifies them. Not thread-safe: the
+ * supervisor calls it under its lock.
  */
 public final class CheckpointLedger {
+  private static final Pattern LAST_NUMBER = Pattern.compile("(\\d+)(?!.*\\d)");
+
   /**
    * One settled checkpoint.
    *
-   * @param healthy whether the run was healthy (finite training loss, no divergence) when written
+   * @param path the trainer's file
+   * @param step the step when it first appeared (or the exact step from its name)
+   * @param wallMillis when it first appeared
+   * @param size its size when it settled
+   * @param sha256 hash of the vault copy (of the original when there is no vault)
+   * @param healthy whether the run was healthy (finite values) when it appeared
+   * @param vault our copy, or null (no vault, not healthy, or pruned)
+   * @param state {@code ok}, {@code pruned} (vault copy removed), {@code abandoned} (written on a
+   *     branch of the run that a rewind left behind) or {@code damaged} (its bytes changed)
    */
   public record Entry(Path path, long step, long wallMillis, long size, String sha256,
-      double train, double validation, boolean healthy) {}
+      double train, double validation, boolean healthy, Path vault, String state) {
+    public Entry {
+      Objects.requireNonNull(path, "path");
+      state = state == null ? OK : state;
+    }
+
+    /** The file a rewind would resume from: the vault copy when there is one. */
+    public Path usable() {
+      return vault != null ? vault : path;
+    }
+
+    Entry with(Path newVault, String newState) {
+      return new Entry(path, step, wallMillis, size, sha256, train, validation, healthy,
+          newVault, newState);
+    }
+  }
+
+  public static final String OK = "ok";
+  public static final String PRUNED = "pruned";
+  public static final String ABANDONED = "abandoned";
+  public static final String DAMAGED = "damaged";
+
+  /** Something the supervisor should write to the audit log. */
+  public record Notice(String type, Map<String, Object> fields) {}
+
+  /** A path's last settled stamp, for resume: an unchanged file is not taken in twice. */
+  public record Seen(Path path, long size, long modifiedMillis) {}
 
   private final Path root;
+  private final Path base;
+  private final int depth;
   private final PathMatcher matcher;
   private final String glob;
-  private final Map<Path, long[]> pending = new HashMap<>();
+  private final CheckpointVault vault;
+  private final long settleMillis;
+  private final Map<Path, Sighting> pending = new HashMap<>();
   private final Map<Path, long[]> settled = new HashMap<>();
+  private final Map<Object, Integer> linkedKeys = new HashMap<>();
   private final List<Entry> entries = new ArrayList<>();
+  private final List<Notice> notices = new ArrayList<>();
+  private long previousScanStep = -1;
+  private Path inUse;
 
+  private static final class Sighting {
+    long size;
+    long mtime;
+    long unchangedSince;
+    final long step;
+    final long firstMillis;
+    final double train;
+    final double validation;
+    final boolean healthy;
+
+    Sighting(long size, long mtime, long now, long step, double train, double validation,
+        boolean healthy) {
+      this.size = size;
+      this.mtime = mtime;
+      this.unchangedSince = now;
+      this.step = step;
+      this.firstMillis = now;
+      this.train = train;
+      this.validation = validation;
+      this.healthy = healthy;
+    }
+  }
+
+  /** A ledger without a vault that settles after two scans with an unchanged file. */
   public CheckpointLedger(Path workdir, String glob) {
+    this(workdir, glob, null, 0);
+  }
+
+  /**
+   * @param workdir the trainer's working directory; the glob is relative to it
+   * @param glob e.g. {@code ckpt/*.pt}
+   * @param vault where healthy checkpoints are kept, or null for none
+   * @param settleMillis how long a file must stay unchanged before it counts
+   */
+  public CheckpointLedger(Path workdir, String glob, CheckpointVault vault, long settleMillis) {
     this.root = workdir.toAbsolutePath().normalize();
-    this.glob = glob;
-    this.matcher = FileSystems.getDefault().getPathMatcher("glob:" + glob);
+    this.glob = glob.replace('\\', '/');
+    this.matcher = FileSystems.getDefault().getPathMatcher("glob:" + this.glob);
+    String[] parts = this.glob.split("/");
+    int fixed = 0;
+    while (fixed < parts.length - 1 && !hasGlobMeta(parts[fixed])) {
+      fixed++;
+    }
+    Path b = root;
+    for (int i = 0; i < fixed; i++) {
+      b = b.resolve(parts[i]);
+    }
+    this.base = b.normalize();
+    boolean deep = false;
+    for (int i = fixed; i < parts.length; i++) {
+      deep |= parts[i].contains("**");
+    }
+    this.depth = deep ? 16 : parts.length - fixed;
+    this.vault = vault;
+    this.settleMillis = settleMillis;
   }
 
   public String glob() {
     return glob;
+  }
+
+  /** The folder the scan starts in (the glob's fixed leading folders). */
+  public Path scanRoot() {
+    return base;
+  }
+
+  public Optional<CheckpointVault> vault() {
+    return Optional.ofNullable(vault);
+  }
+
+  /** Ignores every matching file present now until it changes (an earlier run's leftovers). */
+  public void baseline() throws IOException {
+    for (Path p : find()) {
+      long[] stamp = stamp(p);
+      if (stamp != null) {
+        settled.put(p, stamp);
+      }
+    }
   }
 
   /**
@@ -62,67 +198,310 @@ public final class CheckpointLedger {
    * @param train the last training value (NaN if none)
    * @param validation the last validation value (NaN if none)
    * @param healthy whether the run is healthy now
+   * @param forceSettle take files that appeared but have not settled yet: only when the trainer
+   *     has exited on its own, so nothing can still be writing
    */
   public List<Entry> scan(long step, double train, double validation, boolean healthy,
-      long wallMillis) throws IOException {
+      long wallMillis, boolean forceSettle) throws IOException {
     List<Entry> fresh = new ArrayList<>();
-    if (!Files.isDirectory(root)) {
-      return fresh;
-    }
-    List<Path> found = new ArrayList<>();
-    try (Stream<Path> s = Files.walk(root, 8, FileVisitOption.values())) {
-      s.filter(p -> matcher.matches(root.relativize(p))).forEach(found::add);
-    } catch (IOException | java.io.UncheckedIOException e) {
-      return fresh; // a file vanished mid-walk: try again next scan
-    }
-    for (Path p : found) {
-      BasicFileAttributes a;
-      try {
-        a = Files.readAttributes(p, BasicFileAttributes.class);
-      } catch (IOException e) {
+    for (Path p : find()) {
+      long[] now = stamp(p);
+      if (now == null) {
         continue;
       }
-      if (!a.isRegularFile()) {
-        continue;
-      }
-      long[] now = {a.size(), a.lastModifiedTime().toMillis()};
       long[] done = settled.get(p);
       if (done != null && done[0] == now[0] && done[1] == now[1]) {
         continue;
       }
-      long[] before = pending.put(p, now);
-      if (before != null && before[0] == now[0] && before[1] == now[1]) {
-        pending.remove(p);
-        settled.put(p, now);
-        String hash;
-        try {
-          hash = sha256(p);
-        } catch (IOException e) {
+      Sighting s = pending.get(p);
+      if (s == null) {
+        if (done != null) {
+          noticeInPlaceRewrite(p, now);
+        }
+        s = new Sighting(now[0], now[1], wallMillis, stepFor(p, step), train, validation,
+            healthy);
+        pending.put(p, s);
+        if (!forceSettle) {
           continue;
         }
-        Entry e = new Entry(p, step, wallMillis, now[0], hash, train, validation, healthy);
+      } else if (s.size != now[0] || s.mtime != now[1]) {
+        s.size = now[0];
+        s.mtime = now[1];
+        s.unchangedSince = wallMillis;
+        if (!forceSettle) {
+          continue;
+        }
+      }
+      if (!forceSettle && wallMillis - s.unchangedSince < settleMillis) {
+        continue;
+      }
+      pending.remove(p);
+      settled.put(p, now);
+      Entry e = settle(p, s);
+      if (e != null) {
         entries.add(e);
         fresh.add(e);
       }
     }
+    previousScanStep = step;
     return fresh;
+  }
+
+  /** {@link #scan(long, double, double, boolean, long, boolean)} without forcing. */
+  public List<Entry> scan(long step, double train, double validation, boolean healthy,
+      long wallMillis) throws IOException {
+    return scan(step, train, validation, healthy, wallMillis, false);
+  }
+
+  private Entry settle(Path p, Sighting s) {
+    Path kept = null;
+    String hash;
+    try {
+      if (vault != null && s.healthy) {
+        CheckpointVault.Kept k = vault.keep(p, s.step);
+        kept = k.path();
+        if (k.linked() && k.fileKey() != null) {
+          linkedKeys.put(k.fileKey(), entries.size());
+        }
+      }
+      hash = sha256(kept != null ? kept : p);
+    } catch (IOException e) {
+      Map<String, Object> f = new LinkedHashMap<>();
+      f.put("path", p.toString());
+      f.put("message", "could not keep or hash the checkpoint: " + e.getMessage());
+      notices.add(new Notice("vault-warning", f));
+      return null;
+    }
+    long size;
+    try {
+      size = Files.size(kept != null ? kept : p);
+    } catch (IOException e) {
+      size = s.size;
+    }
+    return new Entry(p, s.step, s.firstMillis, size, hash, s.train, s.validation, s.healthy,
+        kept, OK);
+  }
+
+  /** A settled file changed again: if its identity is one of our links, the link changed too. */
+  private void noticeInPlaceRewrite(Path p, long[] now) {
+    Object key;
+    try {
+      key = Files.readAttributes(p, BasicFileAttributes.class).fileKey();
+    } catch (IOException e) {
+      return;
+    }
+    Integer index = key == null ? null : linkedKeys.remove(key);
+    if (index == null) {
+      return; // rewritten as a new file (write, then rename): our link still holds the old bytes
+    }
+    Entry old = entries.get(index);
+    entries.set(index, old.with(null, DAMAGED));
+    try {
+      if (old.vault() != null) {
+        vault.remove(old.vault());
+      }
+    } catch (IOException e) {
+      // the damaged copy stays; it is marked damaged and never used
+    }
+    vault.copyFromNowOn();
+    Map<String, Object> f = new LinkedHashMap<>();
+    f.put("path", p.toString());
+    f.put("step", old.step());
+    f.put("lost_vault_copy", old.vault() == null ? null : old.vault().toString());
+    f.put("message", "the trainer overwrote " + p + " in place, which also changed our hard-linked"
+        + " vault copy of step " + old.step() + "; the vault copies files from now on");
+    notices.add(new Notice("vault-warning", f));
+  }
+
+  /** The step of a file first seen now: the number in its name when plausible, else {@code step}. */
+  private long stepFor(Path p, long step) {
+    String name = p.getFileName().toString();
+    Matcher m = LAST_NUMBER.matcher(name);
+    if (m.find() && m.group(1).length() <= 18) {
+      long n = Long.parseLong(m.group(1));
+      if (n >= previousScanStep && n <= step) {
+        return n;
+      }
+    }
+    return step;
+  }
+
+  private List<Path> find() throws IOException {
+    List<Path> found = new ArrayList<>();
+    if (!Files.isDirectory(base)) {
+      return found;
+    }
+    try (Stream<Path> s = Files.walk(base, depth)) {
+      s.filter(p -> matcher.matches(root.relativize(p))).forEach(found::add);
+    } catch (IOException | UncheckedIOException e) {
+      return found; // a file or folder vanished mid-walk: try again next scan
+    }
+    return found;
+  }
+
+  private static long[] stamp(Path p) {
+    try {
+      BasicFileAttributes a = Files.readAttributes(p, BasicFileAttributes.class);
+      return a.isRegularFile() ? new long[] {a.size(), a.lastModifiedTime().toMillis()} : null;
+    } catch (IOException e) {
+      return null;
+    }
+  }
+
+  private static Object fileKey(Path p) {
+    try {
+      return Files.readAttributes(p, BasicFileAttributes.class).fileKey();
+    } catch (IOException e) {
+      return null;
+    }
+  }
+
+  private static boolean hasGlobMeta(String part) {
+    return part.chars().anyMatch(c -> c == '*' || c == '?' || c == '[' || c == '{' || c == '\\');
+  }
+
+  /** Notices gathered since the last call (vault warnings), for the audit log. */
+  public List<Notice> drainNotices() {
+    List<Notice> out = List.copyOf(notices);
+    notices.clear();
+    return out;
   }
 
   public List<Entry> entries() {
     return List.copyOf(entries);
   }
 
-  /** The healthy entry with the lowest validation value (then the latest), if any. */
+  /** The healthy usable entry with the lowest validation value (then the latest), if any. */
   public Optional<Entry> best() {
-    return entries.stream().filter(Entry::healthy).filter(e -> Double.isFinite(e.validation()))
+    return entries.stream().filter(this::usable).filter(e -> Double.isFinite(e.validation()))
         .min(Comparator.comparingDouble(Entry::validation)
             .thenComparing(Comparator.comparingLong(Entry::step).reversed()));
   }
 
-  /** The newest healthy entry written at or before {@code step}. */
+  /** The newest healthy usable entry written at or before {@code step}. */
   public Optional<Entry> latestHealthyAtOrBefore(long step) {
-    return entries.stream().filter(Entry::healthy).filter(e -> e.step() <= step)
+    return entries.stream().filter(this::usable).filter(e -> e.step() <= step)
         .max(Comparator.comparingLong(Entry::step).thenComparingLong(Entry::wallMillis));
+  }
+
+  /** Healthy, on the current branch, undamaged, and (with a vault) still in the vault. */
+  private boolean usable(Entry e) {
+    return e.healthy() && OK.equals(e.state()) && (vault == null || e.vault() != null);
+  }
+
+  /**
+   * Checks that a rewind target still holds the bytes we hashed; marks it damaged when not.
+   *
+   * @return true when the file is intact
+   */
+  public boolean verify(Entry e) {
+    boolean intact;
+    try {
+      intact = Files.isRegularFile(e.usable()) && sha256(e.usable()).equals(e.sha256());
+    } catch (IOException ex) {
+      intact = false;
+    }
+    if (!intact) {
+      int i = entries.indexOf(e);
+      if (i >= 0) {
+        entries.set(i, e.with(e.vault(), DAMAGED));
+      }
+    }
+    return intact;
+  }
+
+  /**
+   * Marks entries written after {@code step} as abandoned: a rewind to {@code step} left that
+   * branch of the run behind, so they are no rewind targets any more. Returns how many.
+   */
+  public int abandonAfter(long step) {
+    int n = 0;
+    for (int i = 0; i < entries.size(); i++) {
+      Entry e = entries.get(i);
+      if (e.step() > step && OK.equals(e.state())) {
+        entries.set(i, e.with(e.vault(), ABANDONED));
+        n++;
+      }
+    }
+    previousScanStep = Math.min(previousScanStep, step); // the step axis goes back with the rewind
+    // Files the stopped trainer was still writing past the target belong to that branch too.
+    pending.entrySet().removeIf(p -> {
+      if (p.getValue().step > step) {
+        settled.put(p.getKey(), new long[] {p.getValue().size, p.getValue().mtime});
+        return true;
+      }
+      return false;
+    });
+    return n;
+  }
+
+  /** The vault copy a running trainer was started from: never pruned while it is in use. */
+  public void inUse(Path vaultCopy) {
+    inUse = vaultCopy;
+  }
+
+  /**
+   * Removes vault copies beyond the best and the latest {@code keep} healthy entries (and those
+   * of abandoned or damaged entries). Only our own vault files are deleted.
+   *
+   * @return the vault files removed
+   */
+  public List<Path> prune() throws IOException {
+    List<Path> removed = new ArrayList<>();
+    if (vault == null) {
+      return removed;
+    }
+    Optional<Entry> best = best();
+    List<Entry> latest = entries.stream().filter(this::usable)
+        .sorted(Comparator.comparingLong(Entry::step).thenComparingLong(Entry::wallMillis)
+            .reversed())
+        .limit(vault.keep()).toList();
+    for (int i = 0; i < entries.size(); i++) {
+      Entry e = entries.get(i);
+      if (e.vault() == null || latest.contains(e) || best.filter(e::equals).isPresent()
+          || e.vault().equals(inUse)) {
+        continue;
+      }
+      if (vault.owns(e.vault())) {
+        vault.remove(e.vault());
+        removed.add(e.vault());
+      }
+      entries.set(i, e.with(null, OK.equals(e.state()) ? PRUNED : e.state()));
+    }
+    return removed;
+  }
+
+  /** What a resumed run needs: the settled stamps of watched files. */
+  public List<Seen> seen() {
+    List<Seen> out = new ArrayList<>();
+    settled.forEach((p, s) -> out.add(new Seen(p, s[0], s[1])));
+    out.sort(Comparator.comparing(s -> s.path().toString()));
+    return out;
+  }
+
+  /**
+   * Restores entries and stamps saved by an earlier supervisor of this run, then baselines
+   * whatever changed while no supervisor watched (its step is unknown).
+   */
+  public void restore(List<Entry> saved, List<Seen> stamps) throws IOException {
+    entries.clear();
+    entries.addAll(saved);
+    settled.clear();
+    for (Seen s : stamps) {
+      settled.put(s.path(), new long[] {s.size(), s.modifiedMillis()});
+    }
+    for (int i = 0; i < entries.size(); i++) {
+      Entry e = entries.get(i);
+      if (e.vault() != null && !Files.isRegularFile(e.vault())) {
+        entries.set(i, e.with(null, DAMAGED));
+      } else if (e.vault() != null) {
+        Object key = fileKey(e.vault());
+        if (key != null && key.equals(fileKey(e.path()))) {
+          linkedKeys.put(key, i); // still a hard link of the trainer's file
+        }
+      }
+    }
+    baseline();
   }
 
   static String sha256(Path p) throws IOException {

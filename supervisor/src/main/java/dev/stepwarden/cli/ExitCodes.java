@@ -16,6 +16,11 @@ public final class ExitCodes {
   public static final int GAVE_UP = 4;
   /** Interrupted by SIGINT (SIGTERM gives 143). */
   public static final int INTERRUPTED = 130;
+  /**
+   * Pre-empted (SIGUSR1): the trainer was asked for a checkpoint and stopped, the state is saved;
+   * requeue the job and continue with {@code run --resume RUN_DIR}. EX_TEMPFAIL of sysexits.h.
+   */
+  public static final int REQUEUE = 75;
   /** The guard file (or another configuration) is invalid. */
   public static final int CONFIG = 78;
 
@@ -24,6 +29,8 @@ public final class ExitCodes {
       + "  3   stopped early by a guard (a success: the best checkpoint is named)%n"
       + "  4   gave up (a limit ran out: rewinds, crash restarts, floor reached while diverging)%n"
       + "  2   usage error%n"
+      + "  75  pre-empted by SIGUSR1: checkpoint asked for, state saved; requeue and continue"
+      + " with run --resume RUN_DIR%n"
       + "  78  configuration error (the guard file names the line and column)%n"
       + "  1   internal error%n"
       + "  130 interrupted by SIGINT (143 for SIGTERM); the trainer's whole tree is stopped first";

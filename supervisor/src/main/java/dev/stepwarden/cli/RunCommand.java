@@ -3,12 +3,19 @@ package dev.stepwarden.cli;
 import dev.stepwarden.rules.ConfigException;
 import dev.stepwarden.rules.GuardFile;
 import dev.stepwarden.rules.GuardFiles;
+import dev.stepwarden.supervise.RunDirectory;
+import dev.stepwarden.supervise.Signals;
 import dev.stepwarden.supervise.Supervisor;
 import java.io.IOException;
 import java.io.PrintWriter;
 import java.nio.file.FileAlreadyExistsException;
+import java.nio.file.Files;
 import java.nio.file.Path;
+import java.time.Duration;
 import java.util.List;
+import java.util.Locale;
+import java.util.regex.Matcher;
+import java.util.regex.Pattern;
 import java.util.concurrent.Callable;
 import picocli.CommandLine.Command;
 import picocli.CommandLine.Model.CommandSpec;
@@ -17,15 +24,38 @@ import picocli.CommandLine.Parameters;
 import picocli.CommandLine.Spec;
 
 @Command(name = "run", description = "Supervise one training run in the foreground.",
-    footer = {"", "Example:", "  stepwarden run --rules rules/overnight.yaml -- python3 train.py"
-        + " --lr {learning_rate}", "", ExitCodes.TABLE})
+    footer = {"", "Examples:", "  stepwarden run --rules rules/overnight.yaml -- python3 train.py"
+        + " --lr {learning_rate}", "  stepwarden run --resume runs/sensor-net-20260101-220000",
+        "", "On SIGUSR1 (a batch scheduler's pre-emption notice) the trainer is asked for a"
+        + " checkpoint, stopped, the state saved, and stepwarden exits with 75; requeue the job"
+        + " with run --resume.", "", ExitCodes.TABLE})
 final class RunCommand implements Callable<Integer> {
   @Spec
   CommandSpec spec;
 
-  @Option(names = "--rules", paramLabel = "FILE", required = true,
-      description = "The guard file (YAML).")
+  @Option(names = "--rules", paramLabel = "FILE",
+      description = "The guard file (YAML). With --resume: default RUN_DIR/guards.yaml.")
   Path rules;
+
+  @Option(names = "--resume", paramLabel = "RUN_DIR", description = "Continue the run in"
+      + " RUN_DIR whose supervisor died or was pre-empted: from its latest healthy vault"
+      + " checkpoint, with the saved rate, counters and guard states.")
+  Path resume;
+
+  @Option(names = "--on-preempt", paramLabel = "HOW", defaultValue = "control-file",
+      description = "How to ask the trainer for a last checkpoint on SIGUSR1: control-file"
+          + " (write checkpoint_request into the control file) or signal:NAME (forward a"
+          + " signal, e.g. signal:USR1). Default: ${DEFAULT-VALUE}.")
+  String onPreempt;
+
+  @Option(names = "--preempt-wait", paramLabel = "DURATION", defaultValue = "30s",
+      description = "How long to wait on SIGUSR1 for that checkpoint before stopping the"
+          + " trainer (e.g. 30s, 2m). Default: ${DEFAULT-VALUE}.")
+  String preemptWait;
+
+  @Option(names = "--copy-vault", description = "Copy checkpoints into the vault instead of"
+      + " hard-linking them (for a trainer that overwrites its checkpoint files in place).")
+  boolean copyVault;
 
   @Option(names = "--run-dir", paramLabel = "DIR",
       description = "Where to keep logs, metrics, the audit log and the vault"
@@ -48,6 +78,21 @@ final class RunCommand implements Callable<Integer> {
           + " command after '--'. Try 'stepwarden run --help'.");
       return ExitCodes.USAGE;
     }
+    Supervisor.Preemption preemption;
+    try {
+      preemption = preemption(onPreempt, preemptWait);
+    } catch (IllegalArgumentException e) {
+      err.println("stepwarden: " + e.getMessage());
+      return ExitCodes.USAGE;
+    }
+    if (resume != null) {
+      return resume(err, preemption);
+    }
+    if (rules == null) {
+      err.println("stepwarden: give the guard file with --rules FILE (or continue a run with"
+          + " --resume RUN_DIR)");
+      return ExitCodes.USAGE;
+    }
     GuardFile g;
     try {
       g = GuardFiles.load(rules);
@@ -63,13 +108,90 @@ final class RunCommand implements Callable<Integer> {
           + rules);
       return ExitCodes.USAGE;
     }
-    return supervise(g, runDir, quiet, spec.commandLine().getOut(), err).exitCode();
+    Supervisor.Options o = new Supervisor.Options(runDir, quiet, null, null)
+        .withPreemption(preemption).withCopyVault(copyVault);
+    return supervise(new Supervisor(g, o), spec.commandLine().getOut(), err).exitCode();
+  }
+
+  private int resume(PrintWriter err, Supervisor.Preemption preemption) {
+    if (runDir != null || (command != null && !command.isEmpty())) {
+      err.println("stepwarden: --resume continues the run where it is, with its own command;"
+          + " drop --run-dir and the command after '--'");
+      return ExitCodes.USAGE;
+    }
+    if (!Files.isDirectory(resume)) {
+      err.println("stepwarden: --resume " + resume + ": no such run directory");
+      return ExitCodes.USAGE;
+    }
+    Path file = rules != null ? rules : resume.resolve(RunDirectory.GUARDS);
+    if (!Files.isRegularFile(file)) {
+      err.println("stepwarden: " + file + " is missing (the run started from a guard file that"
+          + " was not on disk); give it with --rules FILE");
+      return ExitCodes.USAGE;
+    }
+    GuardFile g;
+    try {
+      g = GuardFiles.load(file);
+    } catch (ConfigException e) {
+      err.println(e.getMessage());
+      return ExitCodes.CONFIG;
+    }
+    Supervisor s;
+    try {
+      s = Supervisor.resume(resume, g, new Supervisor.Options(resume, quiet, null, null)
+          .withPreemption(preemption).withCopyVault(copyVault));
+    } catch (IOException | IllegalStateException e) {
+      err.println("stepwarden: cannot resume: " + e.getMessage());
+      return ExitCodes.USAGE;
+    }
+    return supervise(s, spec.commandLine().getOut(), err).exitCode();
+  }
+
+  static Supervisor.Preemption preemption(String how, String wait) {
+    Duration d = duration(wait, "--preempt-wait");
+    if (how.equals("control-file")) {
+      return new Supervisor.Preemption(null, d);
+    }
+    if (how.startsWith("signal:")) {
+      String name = how.substring("signal:".length()).toUpperCase(Locale.ROOT);
+      name = name.startsWith("SIG") ? name.substring(3) : name;
+      return new Supervisor.Preemption(name, d);
+    }
+    throw new IllegalArgumentException("--on-preempt " + how + ": give control-file or"
+        + " signal:NAME (e.g. signal:USR1)");
+  }
+
+  private static final Pattern DURATION = Pattern.compile("(\\d+)\\s*(ms|s|m|h)?");
+
+  static Duration duration(String text, String option) {
+    Matcher m = DURATION.matcher(text.trim());
+    if (!m.matches()) {
+      throw new IllegalArgumentException(option + " " + text + ": give a duration like 30s, 2m"
+          + " or 500ms");
+    }
+    long n = Long.parseLong(m.group(1));
+    String unit = m.group(2) == null ? "s" : m.group(2);
+    return switch (unit) {
+      case "ms" -> Duration.ofMillis(n);
+      case "m" -> Duration.ofMinutes(n);
+      case "h" -> Duration.ofHours(n);
+      default -> Duration.ofSeconds(n);
+    };
   }
 
   /** Runs a supervisor with a shutdown hook for SIGINT/SIGTERM; prints the short summary. */
   static Ran supervise(GuardFile g, Path runDir, boolean quiet, PrintWriter out,
       PrintWriter err) {
-    Supervisor s = new Supervisor(g, new Supervisor.Options(runDir, quiet, null, null));
+    return supervise(new Supervisor(g, new Supervisor.Options(runDir, quiet, null, null)), out,
+        err);
+  }
+
+  /**
+   * Runs {@code s} with a shutdown hook for SIGINT/SIGTERM and a SIGUSR1 handler for
+   * pre-emption; prints the short summary.
+   */
+  static Ran supervise(Supervisor s, PrintWriter out, PrintWriter err) {
+    Signals.install("USR1", () -> s.preempt("SIGUSR1"));
     Thread hook = new Thread(() -> s.interrupt("SIGINT or SIGTERM"), "stepwarden-shutdown");
     Runtime.getRuntime().addShutdownHook(hook);
     try {

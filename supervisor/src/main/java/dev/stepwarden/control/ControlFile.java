@@ -28,6 +28,14 @@ import tools.jackson.databind.json.JsonMapper;
 public final class ControlFile {
   private static final JsonMapper JSON = JsonMapper.builder().build();
 
+  /** The key that asks the trainer to write a checkpoint now (its value: the revision). */
+  public static final String CHECKPOINT_REQUEST_KEY = "checkpoint_request";
+
+  /** Where the trainer helpers live in the jar ({@code stepwarden helper} prints them). */
+  public static final String PYTHON_HELPER = "/dev/stepwarden/control/stepwarden_control.py";
+
+  public static final String JAVA_HELPER = "/dev/stepwarden/control/StepwardenControl.java";
+
   private final Path path;
   private long revision;
 
@@ -48,12 +56,30 @@ public final class ControlFile {
   /** Publishes a new rate atomically; returns its revision number. */
   public synchronized long publish(double learningRate, String guard, long atStep)
       throws IOException {
+    return write(learningRate, guard, atStep, false);
+  }
+
+  /**
+   * Publishes the current rate again with {@code "checkpoint_request": REVISION}: the supervisor
+   * is about to be pre-empted and asks the trainer to save a checkpoint now. A trainer that does
+   * not know the key just sees an unchanged rate.
+   */
+  public synchronized long requestCheckpoint(double learningRate, String reason, long atStep)
+      throws IOException {
+    return write(learningRate, reason, atStep, true);
+  }
+
+  private long write(double learningRate, String guard, long atStep, boolean checkpoint)
+      throws IOException {
     long next = revision + 1;
     Map<String, Object> body = new LinkedHashMap<>();
     body.put("revision", next);
     body.put("learning_rate", learningRate);
     body.put("guard", guard);
     body.put("at_step", atStep);
+    if (checkpoint) {
+      body.put(CHECKPOINT_REQUEST_KEY, next);
+    }
     write(JSON.writeValueAsString(body) + "\n");
     revision = next;
     return next;

@@ -84,6 +84,31 @@ public final class GuardEngine {
     return bestValidationStep;
   }
 
+  /** The state a resumed run needs ({@link #restore}). */
+  public GuardEngineState snapshot() {
+    Map<String, long[]> rests = new LinkedHashMap<>();
+    for (Armed a : armed) {
+      rests.put(a.guard.name(), new long[] {a.evaluations, a.restUntil});
+    }
+    return new GuardEngineState(rate, rewinds, samples, bestValidation, bestValidationStep, rests);
+  }
+
+  /** Continues from a {@link #snapshot()} of an earlier engine on the same guard file. */
+  public void restore(GuardEngineState s) {
+    rate = s.rate();
+    rewinds = s.rewinds();
+    samples = s.samples();
+    bestValidation = s.bestValidation();
+    bestValidationStep = s.bestValidationStep();
+    for (Armed a : armed) {
+      long[] r = s.rests().get(a.guard.name());
+      if (r != null && r.length == 2) {
+        a.evaluations = r[0];
+        a.restUntil = r[1];
+      }
+    }
+  }
+
   /** Feeds one sample; returns the decision when a guard (or the safety net) fired. */
   public Optional<Decision> onSample(Sample sample) {
     samples++;

@@ -10,6 +10,12 @@ public enum RunOutcome {
   GAVE_UP(4),
   /** The supervisor was interrupted (SIGINT 130; SIGTERM ends the JVM with 143). */
   INTERRUPTED(130),
+  /**
+   * The supervisor was pre-empted (SIGUSR1 from a batch scheduler): it asked the trainer for a
+   * checkpoint, stopped it and saved its state; {@code run --resume} continues. 75 is EX_TEMPFAIL
+   * of sysexits.h: "try again later".
+   */
+  REQUEUE(75),
   /** The supervisor itself failed (for example the run directory became unwritable). */
   INTERNAL_ERROR(1);
 

@@ -2,6 +2,7 @@ package dev.stepwarden.supervise;
 
 import dev.stepwarden.audit.AuditLog;
 import dev.stepwarden.checkpoints.CheckpointLedger;
+import dev.stepwarden.checkpoints.CheckpointVault;
 import dev.stepwarden.control.ControlFile;
 import dev.stepwarden.metrics.MetricsIntake;
 import dev.stepwarden.metrics.ReadPlan;
@@ -21,6 +22,8 @@ import java.nio.file.Files;
 import java.nio.file.Path;
 import java.nio.file.StandardCopyOption;
 import java.nio.file.StandardOpenOption;
+import java.nio.channels.FileChannel;
+import java.time.Instant;
 import java.time.Clock;
 import java.time.Duration;
 import java.util.ArrayDeque;
@@ -36,6 +39,7 @@ import java.util.concurrent.LinkedBlockingQueue;
 import java.util.concurrent.TimeUnit;
 import java.util.regex.Matcher;
 import java.util.regex.Pattern;
+import tools.jackson.databind.JsonNode;
 import tools.jackson.databind.json.JsonMapper;
 
 /**
@@ -49,13 +53,29 @@ import tools.jackson.databind.json.JsonMapper;
  * stopping waits for the pumps to drain and must never run on a pump thread. The supervising
  * thread also does the periodic work: exit detection, checkpoint scans, the silence watchdog and
  * confirmation time-outs. Wall time comes from the injected {@link Clock}.
+ *
+ * <p>Checkpoints: the ledger is scanned on every tick and on every validation sample, so the step
+ * a checkpoint gets (the step when it first appeared) is close to the truth; healthy ones are kept
+ * in the run directory's vault at once, and every rewind or restart resumes from the vault copy,
+ * verified against its hash. Restarts continue the step axis ({@link MetricsIntake#continueAfter})
+ * and mark the checkpoints of the branch left behind as abandoned.
+ *
+ * <p>Resume: after every launch, decision, checkpoint and confirmation (and every few seconds
+ * while steps advance) {@code state.json} is replaced atomically. {@link #resume} reads it back,
+ * cuts a torn last audit record (the supervisor was killed mid-write), and relaunches the trainer
+ * from the latest healthy vault checkpoint with the saved rate and counters.
+ *
+ * <p>Pre-emption ({@link #preempt}): asks the trainer for a checkpoint (a control-file request or
+ * a forwarded signal), waits a bounded time for one to settle, stops the tree, saves the state and
+ * ends with {@link RunOutcome#REQUEUE}.
  */
 public final class Supervisor {
   private static final JsonMapper JSON = JsonMapper.builder().build();
   private static final Pattern OOM = Pattern.compile(
       "(?i)(out of memory|OutOfMemoryError|CUDA error: out of memory|MemoryError|Killed)");
   private static final long TICK_MILLIS = 200;
-  private static final long SCAN_MILLIS = 1_000;
+  private static final long SETTLE_MILLIS = 500;
+  private static final long STATE_EVERY_MILLIS = 5_000;
   private static final int MISSING_KEY_WARNING_AFTER = 1_000;
 
   /** What the run came to. */
@@ -63,17 +83,55 @@ public final class Supervisor {
       int interventions, double finalRate, Optional<CheckpointLedger.Entry> bestCheckpoint,
       double bestValidation, long bestValidationStep) {}
 
-  /** Options that are not part of the guard file. */
+  /**
+   * Options that are not part of the guard file.
+   *
+   * @param preemption what to do on {@link #preempt} (SIGUSR1)
+   * @param copyVault copy checkpoints into the vault instead of hard-linking them
+   */
   public record Options(Path runDir, boolean quiet, Clock clock, PrintStream console,
-      RunObserver observer) {
+      RunObserver observer, Preemption preemption, boolean copyVault) {
     public Options {
       clock = clock == null ? Clock.systemUTC() : clock;
       console = console == null ? System.err : console;
       observer = observer == null ? RunObserver.NONE : observer;
+      preemption = preemption == null ? Preemption.DEFAULT : preemption;
+    }
+
+    public Options(Path runDir, boolean quiet, Clock clock, PrintStream console,
+        RunObserver observer) {
+      this(runDir, quiet, clock, console, observer, null, false);
     }
 
     public Options(Path runDir, boolean quiet, Clock clock, PrintStream console) {
       this(runDir, quiet, clock, console, null);
+    }
+
+    public Options withPreemption(Preemption p) {
+      return new Options(runDir, quiet, clock, console, observer, p, copyVault);
+    }
+
+    public Options withCopyVault(boolean copy) {
+      return new Options(runDir, quiet, clock, console, observer, preemption, copy);
+    }
+  }
+
+  /**
+   * How the trainer is asked for a last checkpoint when the supervisor is pre-empted.
+   *
+   * @param signal a signal name to forward to the trainer (USR1, TERM, ...), or null to write
+   *     {@code "checkpoint_request"} into the control file
+   * @param patience how long to wait for a new checkpoint to settle before stopping the trainer
+   */
+  public record Preemption(String signal, Duration patience) {
+    public static final Preemption DEFAULT = new Preemption(null, Duration.ofSeconds(30));
+
+    public Preemption {
+      if (signal != null && !signal.matches("[A-Z0-9]+")) {
+        throw new IllegalArgumentException("signal name '" + signal + "': give it like USR1 or"
+            + " TERM (upper case, without SIG)");
+      }
+      patience = patience == null ? Duration.ofSeconds(30) : patience;
     }
   }
 
@@ -82,9 +140,11 @@ public final class Supervisor {
 
     record Relaunch(String reason, Decision decision, long targetStep, int skipBatches,
         boolean fromCheckpoint) implements Request {}
+
+    record Preempt(String why) implements Request {}
   }
 
-  private final GuardFile rules;
+  private GuardFile rules;
   private final Options options;
   private final Clock clock;
   private final Object lock = new Object();
@@ -108,12 +168,15 @@ public final class Supervisor {
   private int crashRestarts;
   private int interventions;
   private long lastMetricMillis;
-  private long lastScanMillis;
   private double lastTrain = Double.NaN;
   private double lastValidation = Double.NaN;
   private boolean missingWarned;
   private Pending pending;
   private String resumeFrom = "";
+  private long currentStep = -1;
+  private long stateSavedStep = -1;
+  private long stateSavedMillis;
+  private JsonNode resumed;
 
   private record Pending(long revision, double rate, long sinceMillis, long decisionSeq) {}
 
@@ -132,11 +195,39 @@ public final class Supervisor {
     return dir == null ? null : dir.root();
   }
 
+  /**
+   * A supervisor that continues the run in {@code runDir}, whose supervisor died (or was
+   * pre-empted), from its {@code state.json}. {@code rules} is the run's guard file (normally
+   * {@code RUN_DIR/guards.yaml}); the command, working directory and environment come from the
+   * saved state, so a command given after {@code --} at the start is kept.
+   *
+   * @throws IOException when the state file is missing or damaged
+   * @throws IllegalStateException when the run already ended
+   */
+  public static Supervisor resume(Path runDir, GuardFile rules, Options options)
+      throws IOException {
+    Path root = runDir.toAbsolutePath().normalize();
+    JsonNode state = StateFile.read(root.resolve(RunDirectory.STATE));
+    if (state.path("ended").asBoolean(false)) {
+      throw new IllegalStateException("the run in " + root + " already ended ("
+          + state.path("outcome").asString("?") + "); there is nothing to resume");
+    }
+    GuardFile g = rules.withRun(StateFile.run(state.path("run")));
+    Supervisor s = new Supervisor(g, new Options(root, options.quiet(), options.clock(),
+        options.console(), options.observer(), options.preemption(), options.copyVault()));
+    s.resumed = state;
+    return s;
+  }
+
   /** Runs the night; returns when the trainer finished, a guard ended it, or it was stopped. */
   public Result run() throws IOException, InterruptedException {
-    prepare();
+    if (resumed == null) {
+      prepare();
+    } else {
+      prepareResume();
+    }
     try {
-      launch("start", 0);
+      launch(resumed == null ? "start" : "resume", 0);
       return loop();
     } finally {
       finished = true;
@@ -175,10 +266,19 @@ public final class Supervisor {
     }
   }
 
+  /** Pre-emption: stop at the next tick after asking the trainer for a checkpoint. */
+  public void preempt(String why) {
+    if (!finished) {
+      requests.add(new Request.Preempt(why));
+    }
+  }
+
   private void prepare() throws IOException {
     dir = RunDirectory.create(options.runDir(), rules.run().name(), clock.instant());
     workdir = rules.run().workdir() == null ? Path.of("").toAbsolutePath()
         : rules.run().workdir().toAbsolutePath();
+    rules = rules.withRun(new GuardFile.Run(rules.run().name(), rules.run().command(),
+        rules.run().learningRate(), workdir, rules.run().env(), rules.run().stopGrace()));
     if (rules.source() != null && Files.isRegularFile(rules.source())) {
       Files.copy(rules.source(), dir.privateFile(RunDirectory.GUARDS),
           StandardCopyOption.REPLACE_EXISTING);
@@ -187,7 +287,10 @@ public final class Supervisor {
     control = new ControlFile(dir.file(RunDirectory.CONTROL), 0);
     intake = new MetricsIntake(rules.read());
     engine = new GuardEngine(rules);
-    ledger = rules.checkpoints().map(c -> new CheckpointLedger(workdir, c.watch())).orElse(null);
+    ledger = newLedger();
+    if (ledger != null) {
+      ledger.baseline(); // an earlier run's files: their step is unknown
+    }
     metricsOut = Files.newBufferedWriter(dir.privateFile(RunDirectory.METRICS),
         StandardCharsets.UTF_8, StandardOpenOption.APPEND);
     control.publish(engine.rate(), "(start)", 0);
@@ -202,6 +305,150 @@ public final class Supervisor {
     f.put("guards", rules.guards().stream().map(GuardFile.Guard::name).toList());
     audit.append("run-start", f);
     lastMetricMillis = clock.millis();
+  }
+
+  private CheckpointLedger newLedger() {
+    return rules.checkpoints().map(c -> new CheckpointLedger(workdir, c.watch(),
+        new CheckpointVault(dir.file(RunDirectory.VAULT), c.keep(), options.copyVault()),
+        SETTLE_MILLIS)).orElse(null);
+  }
+
+  private void prepareResume() throws IOException {
+    JsonNode st = resumed;
+    dir = RunDirectory.existing(options.runDir());
+    workdir = rules.run().workdir() == null ? Path.of("").toAbsolutePath()
+        : rules.run().workdir().toAbsolutePath();
+    long tornBytes = cutTornAuditTail(dir.file(RunDirectory.AUDIT));
+    audit = AuditLog.open(dir.privateFile(RunDirectory.AUDIT), clock);
+    control = new ControlFile(dir.file(RunDirectory.CONTROL), st.path("control_revision").asLong());
+    intake = new MetricsIntake(rules.read());
+    engine = new GuardEngine(rules);
+    engine.restore(StateFile.engine(st.path("engine")));
+    attempt = st.path("attempt").asInt();
+    crashRestarts = st.path("crash_restarts").asInt();
+    interventions = st.path("interventions").asInt();
+    long lastStep = st.path("last_step").asLong(-1);
+    ledger = newLedger();
+    if (ledger != null) {
+      List<CheckpointLedger.Entry> entries = new ArrayList<>();
+      st.path("ledger").path("entries").forEach(n -> entries.add(StateFile.entry(n)));
+      List<CheckpointLedger.Seen> seen = new ArrayList<>();
+      st.path("ledger").path("seen").forEach(n -> seen.add(StateFile.seen(n)));
+      ledger.restore(entries, seen);
+    }
+    metricsOut = Files.newBufferedWriter(dir.privateFile(RunDirectory.METRICS),
+        StandardCharsets.UTF_8, StandardOpenOption.APPEND);
+    Optional<CheckpointLedger.Entry> target = chooseTarget(Long.MAX_VALUE);
+    resumeFrom = target.map(e -> e.usable().toString()).orElse("");
+    ledgerInUse(target);
+    currentStep = target.map(CheckpointLedger.Entry::step).orElse(-1L);
+    if (target.isPresent()) {
+      intake.continueAfter(target.get().step());
+      ledger.abandonAfter(target.get().step());
+    } else if (ledger != null) {
+      ledger.abandonAfter(-1);
+    }
+    Map<String, Object> f = new LinkedHashMap<>();
+    f.put("state_saved_at", st.path("saved_at").asString(null));
+    f.put("last_step_before", lastStep);
+    f.put("torn_audit_bytes_removed", tornBytes);
+    f.put("learning_rate", engine.rate());
+    f.put("attempts_before", attempt);
+    f.put("rewinds_before", engine.rewinds());
+    f.put("crash_restarts_before", crashRestarts);
+    f.put("resume_from", resumeFrom.isEmpty() ? null : resumeFrom);
+    f.put("resume_step", target.map(CheckpointLedger.Entry::step).orElse(null));
+    f.put("result", target.isPresent() ? "continuing from the vault checkpoint of step "
+        + target.get().step() : "no healthy checkpoint: starting again from scratch at the saved"
+        + " rate");
+    audit.append("run-resume", f);
+    lastMetricMillis = clock.millis();
+  }
+
+  /**
+   * A supervisor killed mid-append can leave a last line without its newline: cut it (our own
+   * file), so the continued log has no torn record. Returns the bytes removed.
+   */
+  static long cutTornAuditTail(Path log) throws IOException {
+    if (!Files.isRegularFile(log)) {
+      return 0;
+    }
+    try (FileChannel ch = FileChannel.open(log, StandardOpenOption.READ,
+        StandardOpenOption.WRITE)) {
+      long size = ch.size();
+      long keep = size;
+      java.nio.ByteBuffer one = java.nio.ByteBuffer.allocate(1);
+      while (keep > 0) {
+        one.clear();
+        ch.read(one, keep - 1);
+        if (one.get(0) == '\n') {
+          break;
+        }
+        keep--;
+      }
+      if (keep < size) {
+        ch.truncate(keep);
+        ch.force(true);
+      }
+      return size - keep;
+    }
+  }
+
+  private void ledgerInUse(Optional<CheckpointLedger.Entry> target) {
+    if (ledger != null) {
+      ledger.inUse(target.map(CheckpointLedger.Entry::vault).orElse(null));
+    }
+  }
+
+  /** The newest healthy vault checkpoint at or before {@code step} whose bytes are intact. */
+  private Optional<CheckpointLedger.Entry> chooseTarget(long step) throws IOException {
+    if (ledger == null) {
+      return Optional.empty();
+    }
+    while (true) {
+      Optional<CheckpointLedger.Entry> t = ledger.latestHealthyAtOrBefore(step);
+      if (t.isEmpty() || ledger.verify(t.get())) {
+        return t;
+      }
+      Map<String, Object> f = new LinkedHashMap<>();
+      f.put("path", t.get().usable().toString());
+      f.put("step", t.get().step());
+      f.put("message", "the vault copy no longer matches its hash; not using it");
+      audit.append("vault-warning", f);
+    }
+  }
+
+  /** Replaces state.json; called under the lock after anything a resume needs to know. */
+  private void saveState(boolean ended, String outcome) throws IOException {
+    if (dir == null || engine == null) {
+      return;
+    }
+    Map<String, Object> m = new LinkedHashMap<>();
+    m.put("version", StateFile.VERSION);
+    m.put("saved_at", Instant.now(clock).toString());
+    m.put("ended", ended);
+    m.put("outcome", outcome);
+    m.put("run", StateFile.run(rules.run()));
+    m.put("learning_rate", engine.rate());
+    m.put("attempt", attempt);
+    m.put("crash_restarts", crashRestarts);
+    m.put("rewinds", engine.rewinds());
+    m.put("interventions", interventions);
+    m.put("control_revision", control.revision());
+    m.put("last_step", currentStep);
+    m.put("resume_from", resumeFrom);
+    m.put("engine", StateFile.engine(engine.snapshot()));
+    if (ledger != null) {
+      Map<String, Object> l = new LinkedHashMap<>();
+      l.put("glob", ledger.glob());
+      l.put("vault_copying", ledger.vault().map(CheckpointVault::copying).orElse(false));
+      l.put("entries", ledger.entries().stream().map(StateFile::entry).toList());
+      l.put("seen", ledger.seen().stream().map(StateFile::seen).toList());
+      m.put("ledger", l);
+    }
+    StateFile.write(dir.file(RunDirectory.STATE), m);
+    stateSavedStep = currentStep;
+    stateSavedMillis = clock.millis();
   }
 
   private void launch(String reason, int skipBatches) throws IOException {
@@ -249,6 +496,7 @@ public final class Supervisor {
     f.put("skip_batches", skipBatches);
     audit.append("launch", f);
     lastMetricMillis = clock.millis();
+    saveState(false, null);
     options.observer().onLaunch(attempt, reason);
   }
 
@@ -306,12 +554,14 @@ public final class Supervisor {
           ? "applied_revision" : "reported rate");
       audit.append("confirmed", f);
       pending = null;
+      saveState(false, null);
     }
     Sample s = r.sample();
     if (s == null) {
       return;
     }
     lastMetricMillis = now;
+    currentStep = s.step();
     Double t = s.value("train");
     if (t != null) {
       lastTrain = t;
@@ -319,6 +569,7 @@ public final class Supervisor {
     Double v = s.value("validation");
     if (v != null) {
       lastValidation = v;
+      scanCheckpoints(now); // a trainer typically saves right after it evaluates
     }
     writeNormalized(s);
     warnMissingKeys();
@@ -361,6 +612,7 @@ public final class Supervisor {
   private void act(Decision d) throws IOException {
     interventions++;
     long seq = audit.append("decision", decisionFields(d));
+    saveState(false, null);
     say("step " + d.step() + ": guard '" + d.guard() + "' fired: " + d.evidence().summary()
         + (d.changesRate() ? "; rate " + d.rateBefore() + " -> " + d.rateAfter() : ""));
     if (d.ending() != Decision.Ending.CONTINUE) {
@@ -387,6 +639,7 @@ public final class Supervisor {
     f.put("learning_rate", d.rateAfter());
     audit.append("outcome", f);
     pending = new Pending(revision, d.rateAfter(), clock.millis(), seq);
+    saveState(false, null);
   }
 
   private static long onsetStep(Decision d) {
@@ -443,6 +696,9 @@ public final class Supervisor {
         relaunch(rl);
         continue;
       }
+      if (req instanceof Request.Preempt p) {
+        return preempted(p.why());
+      }
       TrainerProcess t = trainer;
       OptionalInt exit = t.waitFor(Duration.ZERO);
       if (exit.isPresent()) {
@@ -462,25 +718,61 @@ public final class Supervisor {
     }
   }
 
+  private boolean healthyNow() {
+    return (Double.isNaN(lastTrain) || Double.isFinite(lastTrain))
+        && (Double.isNaN(lastValidation) || Double.isFinite(lastValidation));
+  }
+
+  /** Scans the checkpoint glob, audits what settled, keeps the vault trim; under the lock. */
+  private int scanCheckpoints(long now) throws IOException {
+    return scanCheckpoints(now, false);
+  }
+
+  private int scanCheckpoints(long now, boolean forceSettle) throws IOException {
+    if (ledger == null) {
+      return 0;
+    }
+    List<CheckpointLedger.Entry> fresh = ledger.scan(currentStep, lastTrain, lastValidation,
+        healthyNow(), now, forceSettle);
+    for (CheckpointLedger.Notice n : ledger.drainNotices()) {
+      audit.append(n.type(), n.fields());
+      say(String.valueOf(n.fields().get("message")));
+    }
+    for (CheckpointLedger.Entry e : fresh) {
+      Map<String, Object> f = new LinkedHashMap<>();
+      f.put("path", e.path().toString());
+      f.put("step", e.step());
+      f.put("size", e.size());
+      f.put("sha256", e.sha256());
+      f.put("train", StateFile.num(e.train()));
+      f.put("validation", StateFile.num(e.validation()));
+      f.put("healthy", e.healthy());
+      f.put("vault", e.vault() == null ? null : e.vault().toString());
+      f.put("vault_by", e.vault() == null ? null
+          : ledger.vault().get().copying() ? "copy" : "hard link");
+      audit.append("checkpoint", f);
+    }
+    if (!fresh.isEmpty()) {
+      List<Path> removed = ledger.prune();
+      if (!removed.isEmpty()) {
+        Map<String, Object> f = new LinkedHashMap<>();
+        f.put("removed", removed.stream().map(Path::toString).toList());
+        f.put("kept", ledger.entries().stream().filter(e -> e.vault() != null)
+            .map(e -> e.vault().toString()).toList());
+        audit.append("vault-pruned", f);
+      }
+      saveState(false, null);
+    }
+    return fresh.size();
+  }
+
   private void periodic() throws IOException {
     long now = clock.millis();
     synchronized (lock) {
       flushMetrics();
-      if (ledger != null && now - lastScanMillis >= SCAN_MILLIS) {
-        lastScanMillis = now;
-        boolean healthy = Double.isNaN(lastTrain) || Double.isFinite(lastTrain);
-        for (CheckpointLedger.Entry e : ledger.scan(intake.lastStep(), lastTrain, lastValidation,
-            healthy, now)) {
-          Map<String, Object> f = new LinkedHashMap<>();
-          f.put("path", e.path().toString());
-          f.put("step", e.step());
-          f.put("size", e.size());
-          f.put("sha256", e.sha256());
-          f.put("train", e.train());
-          f.put("validation", e.validation());
-          f.put("healthy", e.healthy());
-          audit.append("checkpoint", f);
-        }
+      scanCheckpoints(now);
+      if (currentStep != stateSavedStep && now - stateSavedMillis >= STATE_EVERY_MILLIS) {
+        saveState(false, null);
       }
       if (pending != null && now - pending.sinceMillis() > rules.steer().confirmWithin().toMillis()) {
         Map<String, Object> f = new LinkedHashMap<>();
@@ -524,21 +816,29 @@ public final class Supervisor {
       generation++; // lines still draining from the old trainer are ignored
       Optional<CheckpointLedger.Entry> target = Optional.empty();
       if (rl.fromCheckpoint() && ledger != null) {
-        ledger.scan(intake.lastStep(), lastTrain, lastValidation, false, clock.millis());
-        target = ledger.latestHealthyAtOrBefore(rl.targetStep());
+        ledger.scan(currentStep, lastTrain, lastValidation, false, clock.millis());
+        target = chooseTarget(rl.targetStep());
       }
-      resumeFrom = target.map(e -> e.path().toString()).orElse("");
+      resumeFrom = target.map(e -> e.usable().toString()).orElse("");
+      ledgerInUse(target);
+      int abandoned = ledger == null ? 0
+          : ledger.abandonAfter(target.map(CheckpointLedger.Entry::step).orElse(-1L));
       Map<String, Object> f = new LinkedHashMap<>();
       f.put("reason", rl.reason());
       f.put("trainer_killed", stop.killed());
       f.put("resume_from", resumeFrom.isEmpty() ? null : resumeFrom);
       f.put("resume_step", target.map(CheckpointLedger.Entry::step).orElse(null));
+      f.put("checkpoint_original", target.map(e -> e.path().toString()).orElse(null));
+      f.put("sha256", target.map(CheckpointLedger.Entry::sha256).orElse(null));
+      f.put("target_step", rl.targetStep());
+      f.put("checkpoints_abandoned", abandoned);
       f.put("learning_rate", engine.rate());
       f.put("result", target.isPresent() ? "restarting from the checkpoint of step "
           + target.get().step() : "restarting from scratch (no healthy checkpoint before step "
           + rl.targetStep() + ")");
       audit.append("outcome", f);
       pending = null;
+      currentStep = target.map(CheckpointLedger.Entry::step).orElse(-1L);
       if (target.isPresent()) {
         intake.continueAfter(target.get().step());
       }
@@ -552,6 +852,8 @@ public final class Supervisor {
       Map<String, Object> f = new LinkedHashMap<>();
       f.put("exit_code", code);
       f.put("step", intake.lastStep());
+      // A clean exit means nothing is still writing; after a crash a file may be half-written.
+      scanCheckpoints(clock.millis(), code == 0);
       if (code == 0) {
         audit.append("trainer-exit", f);
         return result(RunOutcome.FINISHED, "the trainer finished normally");
@@ -586,9 +888,7 @@ public final class Supervisor {
     synchronized (lock) {
       generation++;
       flushMetrics();
-      if (ledger != null) {
-        ledger.scan(intake.lastStep(), lastTrain, lastValidation, true, clock.millis());
-      }
+      scanCheckpoints(clock.millis(), !stop.killed());
       RunOutcome outcome = d == null ? RunOutcome.GAVE_UP
           : d.ending() == Decision.Ending.STOP_EARLY ? RunOutcome.STOPPED_EARLY
           : RunOutcome.GAVE_UP;
@@ -603,6 +903,69 @@ public final class Supervisor {
     }
   }
 
+  private Result preempted(String why) throws IOException, InterruptedException {
+    Preemption how = options.preemption();
+    int before;
+    TrainerProcess t = trainer;
+    synchronized (lock) {
+      before = ledger == null ? 0 : ledger.entries().size();
+      Map<String, Object> f = new LinkedHashMap<>();
+      f.put("why", why);
+      f.put("step", currentStep);
+      f.put("wait_ms", how.patience().toMillis());
+      if (how.signal() != null) {
+        f.put("asked_by", "signal " + how.signal() + " to pid " + t.pid());
+        audit.append("preempt", f);
+        sendSignal(how.signal(), t.pid());
+      } else {
+        long rev = control.requestCheckpoint(engine.rate(), "(pre-emption)", currentStep);
+        f.put("asked_by", "control file revision " + rev + " with "
+            + ControlFile.CHECKPOINT_REQUEST_KEY);
+        audit.append("preempt", f);
+      }
+    }
+    say("pre-empted (" + why + "): waiting up to " + how.patience().toSeconds()
+        + " s for a checkpoint");
+    long deadline = System.nanoTime() + how.patience().toNanos();
+    boolean got = false;
+    while (!got && System.nanoTime() < deadline && t.waitFor(Duration.ZERO).isEmpty()) {
+      Thread.sleep(TICK_MILLIS);
+      synchronized (lock) {
+        scanCheckpoints(clock.millis());
+        got = ledger != null && ledger.entries().size() > before;
+      }
+    }
+    StopResult stop = t.stop();
+    synchronized (lock) {
+      generation++;
+      flushMetrics();
+      scanCheckpoints(clock.millis(), !stop.killed());
+      Optional<CheckpointLedger.Entry> latest = ledger == null ? Optional.empty()
+          : ledger.latestHealthyAtOrBefore(Long.MAX_VALUE);
+      Map<String, Object> f = new LinkedHashMap<>();
+      f.put("new_checkpoint", ledger != null && ledger.entries().size() > before);
+      f.put("resume_will_use", latest.map(e -> e.usable().toString()).orElse(null));
+      f.put("resume_step", latest.map(CheckpointLedger.Entry::step).orElse(null));
+      f.put("trainer_killed", stop.killed());
+      f.put("exit_code", RunOutcome.REQUEUE.exitCode());
+      f.put("result", "state saved; continue with: stepwarden run --resume " + dir.root());
+      audit.append("preempted", f);
+      return result(RunOutcome.REQUEUE, "pre-empted (" + why + "); continue with run --resume");
+    }
+  }
+
+  private void sendSignal(String signal, long pid) {
+    try {
+      Process p = new ProcessBuilder("kill", "-s", signal, Long.toString(pid))
+          .redirectErrorStream(true).redirectOutput(ProcessBuilder.Redirect.DISCARD).start();
+      p.waitFor(5, TimeUnit.SECONDS);
+    } catch (IOException e) {
+      say("could not send " + signal + " to the trainer: " + e.getMessage());
+    } catch (InterruptedException e) {
+      Thread.currentThread().interrupt();
+    }
+  }
+
   private Result result(RunOutcome outcome, String reason) throws IOException {
     Optional<CheckpointLedger.Entry> best = ledger == null ? Optional.empty() : ledger.best();
     Map<String, Object> f = new LinkedHashMap<>();
@@ -614,11 +977,15 @@ public final class Supervisor {
     f.put("best_validation", Double.isNaN(engine.bestValidation()) ? null
         : engine.bestValidation());
     f.put("best_validation_step", engine.bestValidationStep());
-    f.put("best_checkpoint", best.map(e -> e.path().toString()).orElse(null));
+    f.put("best_checkpoint", best.map(e -> e.usable().toString()).orElse(null));
+    f.put("best_checkpoint_step", best.map(CheckpointLedger.Entry::step).orElse(null));
+    f.put("best_checkpoint_original", best.map(e -> e.path().toString()).orElse(null));
     f.put("lines", intake.lines());
     f.put("metric_lines", intake.metricLines());
     f.put("ignored_lines", intake.ignoredLines());
-    audit.append("run-end", f);
+    boolean suspended = outcome == RunOutcome.REQUEUE;
+    audit.append(suspended ? "run-suspended" : "run-end", f);
+    saveState(!suspended, outcome.name().toLowerCase(Locale.ROOT).replace('_', '-'));
     Result r = new Result(outcome, reason, dir.root(), audit.path(), interventions, engine.rate(),
         best, engine.bestValidation(), engine.bestValidationStep());
     options.observer().onEnd(r);

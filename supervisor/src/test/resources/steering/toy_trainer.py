@@ -1,0 +1,82 @@
+"""A toy trainer for the steering tests (invented behaviour, our own scenario).
+
+The "loss" is a made-up curve, not a network: it falls as 1/(1 + step/50) and, when
+--diverge-at is given and the rate is above --stable-below, grows tenfold per --growth-steps steps from that
+step on. Validation is a constant plateau (so a plateau guard fires). Checkpoints are JSON files
+{"step": N, "lr": R} written as a real trainer does: to a temporary file, then renamed over
+ckpt/last.json (and, with --numbered, also ckpt/step-N.json).
+"""
+import argparse
+import json
+import os
+import sys
+import time
+
+p = argparse.ArgumentParser()
+p.add_argument("--lr", type=float, required=True)
+p.add_argument("--resume", default="")
+p.add_argument("--skip-batches", type=int, default=0)
+p.add_argument("--attempt", type=int, default=1)
+p.add_argument("--steps", type=int, default=100)
+p.add_argument("--eval-every", type=int, default=20)
+p.add_argument("--delay", type=float, default=0.02)
+p.add_argument("--ckpt-dir", default="ckpt")
+p.add_argument("--listen", action="store_true", help="use the control-file helper")
+p.add_argument("--numbered", action="store_true")
+p.add_argument("--diverge-at", type=int, default=-1)
+p.add_argument("--stable-below", type=float, default=0.05)
+p.add_argument("--growth-steps", type=float, default=10.0, help="steps per tenfold growth")
+p.add_argument("--crash-at", type=int, default=-1, help="exit 1 there on attempt 1")
+p.add_argument("--hang-at", type=int, default=-1, help="go silent there on attempt 1")
+a = p.parse_args()
+
+control = None
+if a.listen:
+    sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+    from stepwarden_control import Control
+    control = Control(default_lr=a.lr)
+
+step = 0
+lr = a.lr
+if a.resume:
+    with open(a.resume) as f:
+        step = json.load(f)["step"]
+os.makedirs(a.ckpt_dir, exist_ok=True)
+print("toy trainer: attempt %d from step %d at lr %g, skipping %d batches"
+      % (a.attempt, step, lr, a.skip_batches), file=sys.stderr, flush=True)
+
+
+def save(name):
+    tmp = os.path.join(a.ckpt_dir, "." + name + ".tmp")
+    with open(tmp, "w") as f:
+        json.dump({"step": step, "lr": lr}, f)
+    os.replace(tmp, os.path.join(a.ckpt_dir, name))
+
+
+while step < a.steps:
+    if control is not None:
+        lr = control.rate()
+        if control.checkpoint_requested():
+            save("step-%06d.json" % step)
+            print("toy trainer: checkpoint written on request at step %d" % step,
+                  file=sys.stderr, flush=True)
+    step += 1
+    if a.attempt == 1 and step == a.crash_at:
+        print("Traceback (most recent call last):\nMemoryError: simulated", file=sys.stderr,
+              flush=True)
+        sys.exit(1)
+    if a.attempt == 1 and step == a.hang_at:
+        time.sleep(3600)
+    loss = 1.0 / (1.0 + step / 50.0)
+    if a.diverge_at > 0 and step > a.diverge_at and lr >= a.stable_below:
+        loss *= 10 ** ((step - a.diverge_at) / a.growth_steps)
+    line = {"step": step, "loss": loss}
+    line.update(control.report() if control is not None else {"lr": lr})
+    print(json.dumps(line), flush=True)
+    if step % a.eval_every == 0:
+        print(json.dumps({"step": step, "val_loss": 0.5}), flush=True)
+        save("last.json")
+        if a.numbered:
+            save("step-%06d.json" % step)
+    time.sleep(a.delay)
+print("toy trainer: done at step %d" % step, file=sys.stderr, flush=True)
