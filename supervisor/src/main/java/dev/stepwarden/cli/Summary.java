@@ -18,7 +18,9 @@ final class Summary {
     out.println("best:           " + (Double.isNaN(r.bestValidation()) ? "no validation value"
         : String.format(Locale.ROOT, "validation %.4g at step %d", r.bestValidation(),
             r.bestValidationStep()))
-        + r.bestCheckpoint().map(e -> "; checkpoint " + e.path() + " (step " + e.step() + ")")
+        + r.bestCheckpoint().map(e -> "; checkpoint " + (e.vault() != null ? e.vault()
+            + " (vault copy of " + e.path().getFileName() + ", step " + e.step() + ")"
+            : e.path() + " (step " + e.step() + ")"))
             .orElse("; no checkpoint recorded"));
     out.flush();
   }
