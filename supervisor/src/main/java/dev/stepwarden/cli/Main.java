@@ -14,7 +14,8 @@ import picocli.CommandLine.Command;
         + " of a YAML file (lower or raise the learning rate, rewind to a checkpoint, restart,"
         + " stop early) and keeps an audit log of every decision.",
     subcommands = {RunCommand.class, CheckCommand.class, SchemaCommand.class, DemoCommand.class,
-        CompletionCommand.class, CommandLine.HelpCommand.class},
+        CompletionCommand.class, QueueCommand.class, ServeCommand.class,
+        CommandLine.HelpCommand.class},
     footer = {"", ExitCodes.TABLE})
 public final class Main implements Runnable {
   @CommandLine.Spec
