@@ -25,7 +25,7 @@ import picocli.CommandLine.Option;
 import picocli.CommandLine.Parameters;
 import picocli.CommandLine.Spec;
 
-@Command(name = "queue", description = "The overnight queue: add, list and cancel jobs that"
+@Command(name = "queue", mixinStandardHelpOptions = true, description = "The overnight queue: add, list and cancel jobs that"
     + " `stepwarden serve` runs.",
     subcommands = {QueueCommand.Add.class, QueueCommand.ListJobs.class,
         QueueCommand.Cancel.class})
@@ -76,7 +76,7 @@ final class QueueCommand implements Runnable {
     }
   }
 
-  @Command(name = "add", description = "Queue a run: a guard file plus overrides.",
+  @Command(name = "add", mixinStandardHelpOptions = true, description = "Queue a run: a guard file plus overrides.",
       footer = {"", "Examples:",
           "  stepwarden queue add --rules night.yaml --set run.learning_rate=0.05",
           "  stepwarden queue add --rules night.yaml --at 22:30 --priority 8",
@@ -166,7 +166,7 @@ final class QueueCommand implements Runnable {
     }
   }
 
-  @Command(name = "list", description = "Show every job: waiting, running and done.")
+  @Command(name = "list", mixinStandardHelpOptions = true, description = "Show every job: waiting, running and done.")
   static final class ListJobs implements Callable<Integer> {
     @Spec
     CommandSpec spec;
@@ -207,7 +207,7 @@ final class QueueCommand implements Runnable {
     }
   }
 
-  @Command(name = "cancel", description = "Cancel a job: a waiting one never starts, a running"
+  @Command(name = "cancel", mixinStandardHelpOptions = true, description = "Cancel a job: a waiting one never starts, a running"
       + " one is stopped (trainer included) by the serve that runs it.")
   static final class Cancel implements Callable<Integer> {
     @Spec

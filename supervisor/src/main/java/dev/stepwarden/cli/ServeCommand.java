@@ -20,7 +20,7 @@ import picocli.CommandLine.Model.CommandSpec;
 import picocli.CommandLine.Option;
 import picocli.CommandLine.Spec;
 
-@Command(name = "serve", description = "Run the queue's jobs on this machine's slots until"
+@Command(name = "serve", mixinStandardHelpOptions = true, description = "Run the queue's jobs on this machine's slots until"
     + " stopped (SIGTERM or SIGINT: running jobs are stopped, audited and resumed by the next"
     + " serve).",
     footer = {"", "Examples:", "  stepwarden serve --gpus '0;1' --metrics-port 9464",
