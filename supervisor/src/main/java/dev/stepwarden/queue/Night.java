@@ -146,14 +146,30 @@ public final class Night implements AutoCloseable {
     }
   }
 
-  /** Gives a start trigger to every job whose --after job has ended. */
+  /** Gives a start trigger to every job whose --after job ended, and to interrupted ones. */
   void releaseWaiting() throws SchedulerException {
     for (JobKey k : scheduler.getJobKeys(GroupMatcher.jobGroupEquals(Queue.GROUP))) {
       JobDetail d = scheduler.getJobDetail(k);
-      if (d == null || !"after".equals(d.getJobDataMap().getString(Queue.K_STATUS))) {
+      if (d == null) {
         continue;
       }
       JobDataMap m = d.getJobDataMap();
+      if ("interrupted".equals(m.getString(Queue.K_STATUS))
+          && scheduler.getTriggersOfJob(k).isEmpty()) {
+        // stopped by a serve shutdown (SIGTERM) whose own re-trigger may not have reached the
+        // store before the database closed: give it one now so it resumes
+        try {
+          scheduler.scheduleJob(Queue.trigger(k.getName(), "resume", null, null,
+              Integer.parseInt(m.getString(Queue.K_PRIORITY))));
+          audit("resume-interrupted", Map.of("job", k.getName()));
+        } catch (ObjectAlreadyExistsException another) {
+          // another node did it
+        }
+        continue;
+      }
+      if (!"after".equals(m.getString(Queue.K_STATUS))) {
+        continue;
+      }
       if (!queue.ended(m.getString(Queue.K_AFTER))) {
         continue;
       }

@@ -85,6 +85,7 @@ public final class Queue implements AutoCloseable {
   }
 
   static Queue open(QueueSettings settings, int threads) throws QueueException {
+    quietLibraries();
     try {
       Files.createDirectories(settings.home());
       Files.createDirectories(settings.runs());
@@ -100,6 +101,16 @@ public final class Queue implements AutoCloseable {
     } catch (SchedulerException e) {
       throw new QueueException("cannot open the queue at " + Schema.redact(settings.url())
           + ": " + e.getMessage(), e);
+    }
+  }
+
+  /** Quartz and Hikari report every start at INFO; a command-line tool wants warnings only. */
+  private static void quietLibraries() {
+    for (String lib : List.of("org.quartz", "com.zaxxer.hikari")) {
+      String key = "org.slf4j.simpleLogger.log." + lib;
+      if (System.getProperty(key) == null) {
+        System.setProperty(key, "warn");
+      }
     }
   }
 
