@@ -26,6 +26,9 @@ import picocli.CommandLine.Spec;
     footer = {"", "Examples:", "  stepwarden serve --gpus '0;1' --metrics-port 9464",
         "  stepwarden serve --db jdbc:postgresql://db/stepwarden --cluster --runs /shared/runs"})
 final class ServeCommand implements Callable<Integer> {
+  /** How long a stopping serve waits for its runs to be stopped and recorded. */
+  static final long STOP_WAIT_MS = 60_000;
+
   @Spec
   CommandSpec spec;
 
@@ -113,7 +116,17 @@ final class ServeCommand implements Callable<Integer> {
       Night n = night;
       MetricsServer m = metrics;
       Thread hook = new Thread(() -> {
-        n.close();
+        // Bounded: on the embedded store H2's own exit hook may close the database under
+        // Quartz, whose retries would otherwise hold the JVM. The run directories are already
+        // right by then (the runs were interrupted and audited); the next serve re-triggers them.
+        Thread closer = new Thread(n::close, "stepwarden-serve-close");
+        closer.setDaemon(true);
+        closer.start();
+        try {
+          closer.join(STOP_WAIT_MS);
+        } catch (InterruptedException e) {
+          Thread.currentThread().interrupt();
+        }
         if (m != null) {
           m.close();
         }

@@ -81,6 +81,8 @@ public record QueueSettings(Path home, String jdbcUrl, String user, String passw
     p.setProperty("org.quartz.jobStore.useProperties", "true");
     p.setProperty("org.quartz.jobStore.tablePrefix", tablePrefix);
     p.setProperty("org.quartz.jobStore.misfireThreshold", Long.toString(MISFIRE_THRESHOLD_MS));
+    // After a database error Quartz retries on this period (its default 15 s stalls a shutdown).
+    p.setProperty("org.quartz.jobStore.dbRetryInterval", "1000");
     p.setProperty("org.quartz.jobStore.isClustered", Boolean.toString(clustered));
     p.setProperty("org.quartz.jobStore.clusterCheckinInterval",
         Long.toString(checkin.toMillis()));
