@@ -1,0 +1,177 @@
+package dev.stepwarden.cli;
+
+import dev.stepwarden.queue.Night;
+import dev.stepwarden.queue.Queue;
+import dev.stepwarden.queue.QueueException;
+import dev.stepwarden.queue.QueueSettings;
+import dev.stepwarden.telemetry.MetricsServer;
+import io.micrometer.prometheusmetrics.PrometheusMeterRegistry;
+import java.io.IOException;
+import java.io.PrintStream;
+import java.io.PrintWriter;
+import java.time.Duration;
+import java.util.List;
+import java.util.concurrent.Callable;
+import java.util.concurrent.CountDownLatch;
+import picocli.CommandLine;
+import picocli.CommandLine.Command;
+import picocli.CommandLine.Mixin;
+import picocli.CommandLine.Model.CommandSpec;
+import picocli.CommandLine.Option;
+import picocli.CommandLine.Spec;
+
+@Command(name = "serve", mixinStandardHelpOptions = true, description = "Run the queue's jobs on this machine's slots until"
+    + " stopped (SIGTERM or SIGINT: running jobs are stopped, audited and resumed by the next"
+    + " serve).",
+    footer = {"", "Examples:", "  stepwarden serve --gpus '0;1' --metrics-port 9464",
+        "  stepwarden serve --db jdbc:postgresql://db/stepwarden --cluster --runs /shared/runs"})
+final class ServeCommand implements Callable<Integer> {
+  /** How long a stopping serve waits for its runs to be stopped and recorded. */
+  static final long STOP_WAIT_MS = 60_000;
+
+  @Spec
+  CommandSpec spec;
+
+  @Mixin
+  QueueCommand.Where where = new QueueCommand.Where();
+
+  @Option(names = "--slots", paramLabel = "N", description = "Jobs at a time (default: one per"
+      + " --gpus group, else 1).")
+  Integer slots;
+
+  @Option(names = "--gpus", paramLabel = "IDS", description = "GPU ids per slot: commas within a"
+      + " slot, ';' between slots (or repeat the option): --gpus '0,1;2,3'. Each job gets its"
+      + " slot's ids in CUDA_VISIBLE_DEVICES.")
+  List<String> gpus;
+
+  @Option(names = "--metrics-port", paramLabel = "PORT", description = "Serve Prometheus"
+      + " metrics on http://HOST:PORT/metrics (0 picks a free port; default off).")
+  Integer metricsPort;
+
+  @Option(names = "--metrics-host", paramLabel = "HOST", description = "Address for the metrics"
+      + " (default 127.0.0.1; 0.0.0.0 in a container).")
+  String metricsHost = "127.0.0.1";
+
+  @Option(names = "--cluster", description = "Share the --db queue with other serve processes;"
+      + " a live node takes over the jobs of a dead one.")
+  boolean cluster;
+
+  @Option(names = "--checkin", paramLabel = "DURATION", description = "Cluster check-in interval"
+      + " (default 5s); a node silent this long plus 7.5 s is taken over.")
+  String checkin = "5s";
+
+  @Option(names = "--no-median-stop", description = "Do not apply the median stopping rule to"
+      + " jobs of a --study.")
+  boolean noMedian;
+
+  @Option(names = "--median-min-runs", paramLabel = "N", description = "The median rule waits"
+      + " for this many completed runs of the study (default 3).")
+  int medianMinRuns = 3;
+
+  @Option(names = "--median-min-step", paramLabel = "STEP", description = "The median rule does"
+      + " not judge before this step (default 0).")
+  long medianMinStep;
+
+  @Option(names = "--median-series", paramLabel = "SERIES", description = "The series the"
+      + " median rule compares, lower is better (default validation).")
+  String medianSeries = "validation";
+
+  @Override
+  public Integer call() {
+    PrintWriter out = spec.commandLine().getOut();
+    PrintWriter err = spec.commandLine().getErr();
+    QueueSettings settings;
+    List<String> plan;
+    Duration every;
+    try {
+      every = parseDuration(checkin);
+      settings = where.settings(cluster, every);
+      plan = Night.Options.plan(slots, gpus);
+    } catch (IllegalArgumentException | QueueException e) {
+      err.println("stepwarden: " + e.getMessage());
+      return ExitCodes.USAGE;
+    }
+    PrometheusMeterRegistry registry = metricsPort == null ? null : MetricsServer.newRegistry();
+    MetricsServer metrics = null;
+    Queue queue = null;
+    Night night = null;
+    CountDownLatch stopped = new CountDownLatch(1);
+    try {
+      if (registry != null) {
+        metrics = MetricsServer.start(registry, metricsHost, metricsPort);
+      }
+      queue = Queue.openForServe(settings, plan.size());
+      PrintStream console = new PrintStream(new java.io.FileOutputStream(
+          java.io.FileDescriptor.err), true, java.nio.charset.StandardCharsets.UTF_8);
+      night = queue.serve(new Night.Options(plan, registry, resumer(), console, !noMedian,
+          medianSeries, medianMinRuns, medianMinStep));
+      out.println("stepwarden serve: node " + night.node() + ", " + plan.size() + " slot(s),"
+          + " queue " + (settings.jdbcUrl() == null ? settings.home() : settings.jdbcUrl())
+          + ", runs in " + settings.runs());
+      if (metrics != null) {
+        out.println("stepwarden serve: metrics on http://" + metricsHost + ":" + metrics.port()
+            + "/metrics");
+      }
+      out.flush();
+      Night n = night;
+      MetricsServer m = metrics;
+      Thread hook = new Thread(() -> {
+        // Bounded: on the embedded store H2's own exit hook may close the database under
+        // Quartz, whose retries would otherwise hold the JVM. The run directories are already
+        // right by then (the runs were interrupted and audited); the next serve re-triggers them.
+        Thread closer = new Thread(n::close, "stepwarden-serve-close");
+        closer.setDaemon(true);
+        closer.start();
+        try {
+          closer.join(STOP_WAIT_MS);
+        } catch (InterruptedException e) {
+          Thread.currentThread().interrupt();
+        }
+        if (m != null) {
+          m.close();
+        }
+        stopped.countDown();
+      }, "stepwarden-serve-stop");
+      Runtime.getRuntime().addShutdownHook(hook);
+      stopped.await();
+      return ExitCodes.OK;
+    } catch (QueueException | IOException e) {
+      err.println("stepwarden: " + e.getMessage());
+      if (night != null) {
+        night.close();
+      } else if (queue != null) {
+        queue.close();
+      }
+      if (metrics != null) {
+        metrics.close();
+      }
+      return ExitCodes.USAGE;
+    } catch (InterruptedException e) {
+      Thread.currentThread().interrupt();
+      return ExitCodes.INTERRUPTED;
+    }
+  }
+
+  static Duration parseDuration(String text) {
+    java.util.regex.Matcher m = java.util.regex.Pattern.compile("(\\d+)(ms|s|m)?")
+        .matcher(text.strip());
+    if (!m.matches()) {
+      throw new IllegalArgumentException("--checkin '" + text + "': give a duration such as 5s"
+          + " or 1500ms");
+    }
+    long n = Long.parseLong(m.group(1));
+    String unit = m.group(2) == null ? "s" : m.group(2);
+    return unit.equals("ms") ? Duration.ofMillis(n) : unit.equals("m") ? Duration.ofMinutes(n)
+        : Duration.ofSeconds(n);
+  }
+
+  /** Continues an unfinished run through {@code run --resume} when this build has it. */
+  static Night.Resumer resumer() {
+    CommandLine run = Main.commandLine().getSubcommands().get("run");
+    if (run == null || run.getCommandSpec().findOption("--resume") == null) {
+      return null;
+    }
+    return dir -> Main.execute(new String[] {"run", "--resume", dir.toString()},
+        new PrintWriter(System.out, true), new PrintWriter(System.err, true));
+  }
+}
