@@ -14,10 +14,8 @@ import picocli.CommandLine.Command;
         + " of a YAML file (lower or raise the learning rate, rewind to a checkpoint, restart,"
         + " stop early) and keeps an audit log of every decision.",
     subcommands = {RunCommand.class, CheckCommand.class, SchemaCommand.class, DemoCommand.class,
-    subcommands = {RunCommand.class, CheckCommand.class, SchemaCommand.class, DemoCommand.class,
         ReportCommand.class, ReplayCommand.class, QueueCommand.class, ServeCommand.class,
         HelperCommand.class, CompletionCommand.class, CommandLine.HelpCommand.class},
-        CommandLine.HelpCommand.class},
     footer = {"", ExitCodes.TABLE})
 public final class Main implements Runnable {
   @CommandLine.Spec
