@@ -5,7 +5,11 @@ import dev.stepwarden.rules.GuardFile;
 import dev.stepwarden.rules.GuardFiles;
 import dev.stepwarden.supervise.RunDirectory;
 import dev.stepwarden.supervise.Signals;
+import dev.stepwarden.supervise.RunObserver;
 import dev.stepwarden.supervise.Supervisor;
+import dev.stepwarden.telemetry.MetricsServer;
+import dev.stepwarden.telemetry.RunMeters;
+import io.micrometer.prometheusmetrics.PrometheusMeterRegistry;
 import java.io.IOException;
 import java.io.PrintWriter;
 import java.nio.file.FileAlreadyExistsException;
@@ -65,6 +69,10 @@ final class RunCommand implements Callable<Integer> {
   @Option(names = {"-q", "--quiet"}, description = "Do not echo the trainer's output.")
   boolean quiet;
 
+  @Option(names = "--metrics-port", paramLabel = "PORT", description = "Serve Prometheus"
+      + " metrics on http://127.0.0.1:PORT/metrics while the run lasts (0 picks a free port).")
+  Integer metricsPort;
+
   @Parameters(arity = "0..*", paramLabel = "COMMAND",
       description = "The training command after '--' (overrides run.command).")
   List<String> command;
@@ -108,9 +116,34 @@ final class RunCommand implements Callable<Integer> {
           + rules);
       return ExitCodes.USAGE;
     }
-    Supervisor.Options o = new Supervisor.Options(runDir, quiet, null, null)
-        .withPreemption(preemption).withCopyVault(copyVault);
-    return supervise(new Supervisor(g, o), spec.commandLine().getOut(), err).exitCode();
+    try (Telemetry t = Telemetry.open(metricsPort, g, err)) {
+      Supervisor.Options o = new Supervisor.Options(runDir, quiet, null, null)
+          .withPreemption(preemption).withCopyVault(copyVault).withObserver(t.observer());
+      return supervise(new Supervisor(g, o), spec.commandLine().getOut(), err).exitCode();
+    } catch (IOException e) {
+      err.println("stepwarden: " + e.getMessage());
+      return ExitCodes.USAGE;
+    }
+  }
+
+  /** The optional Prometheus endpoint of one run, bound to 127.0.0.1. */
+  private record Telemetry(MetricsServer server, RunObserver observer) implements AutoCloseable {
+    static Telemetry open(Integer port, GuardFile g, PrintWriter err) throws IOException {
+      if (port == null) {
+        return new Telemetry(null, null);
+      }
+      PrometheusMeterRegistry registry = MetricsServer.newRegistry();
+      MetricsServer server = MetricsServer.start(registry, "127.0.0.1", port);
+      err.println("stepwarden: metrics on http://127.0.0.1:" + server.port() + "/metrics");
+      return new Telemetry(server, RunMeters.of(registry, g, null));
+    }
+
+    @Override
+    public void close() {
+      if (server != null) {
+        server.close();
+      }
+    }
   }
 
   private int resume(PrintWriter err, Supervisor.Preemption preemption) {
@@ -136,15 +169,20 @@ final class RunCommand implements Callable<Integer> {
       err.println(e.getMessage());
       return ExitCodes.CONFIG;
     }
-    Supervisor s;
-    try {
-      s = Supervisor.resume(resume, g, new Supervisor.Options(resume, quiet, null, null)
-          .withPreemption(preemption).withCopyVault(copyVault));
-    } catch (IOException | IllegalStateException e) {
-      err.println("stepwarden: cannot resume: " + e.getMessage());
+    try (Telemetry t = Telemetry.open(metricsPort, g, err)) {
+      Supervisor s;
+      try {
+        s = Supervisor.resume(resume, g, new Supervisor.Options(resume, quiet, null, null)
+            .withPreemption(preemption).withCopyVault(copyVault).withObserver(t.observer()));
+      } catch (IOException | IllegalStateException e) {
+        err.println("stepwarden: cannot resume: " + e.getMessage());
+        return ExitCodes.USAGE;
+      }
+      return supervise(s, spec.commandLine().getOut(), err).exitCode();
+    } catch (IOException e) {
+      err.println("stepwarden: " + e.getMessage());
       return ExitCodes.USAGE;
     }
-    return supervise(s, spec.commandLine().getOut(), err).exitCode();
   }
 
   static Supervisor.Preemption preemption(String how, String wait) {

@@ -5,11 +5,13 @@ import dev.stepwarden.checkpoints.CheckpointLedger;
 import dev.stepwarden.checkpoints.CheckpointVault;
 import dev.stepwarden.control.ControlFile;
 import dev.stepwarden.metrics.MetricsIntake;
+import dev.stepwarden.metrics.MetricsSources;
 import dev.stepwarden.metrics.ReadPlan;
 import dev.stepwarden.metrics.Sample;
 import dev.stepwarden.process.LaunchSpec;
 import dev.stepwarden.process.StopResult;
 import dev.stepwarden.process.TrainerProcess;
+import dev.stepwarden.process.TrainerStream;
 import dev.stepwarden.rules.Decision;
 import dev.stepwarden.rules.GuardEngine;
 import dev.stepwarden.rules.GuardFile;
@@ -74,6 +76,7 @@ public final class Supervisor {
   private static final Pattern OOM = Pattern.compile(
       "(?i)(out of memory|OutOfMemoryError|CUDA error: out of memory|MemoryError|Killed)");
   private static final long TICK_MILLIS = 200;
+  private static final Duration FOLLOW_INTERVAL = Duration.ofMillis(100);
   private static final long SETTLE_MILLIS = 500;
   private static final long STATE_EVERY_MILLIS = 5_000;
   private static final int MISSING_KEY_WARNING_AFTER = 1_000;
@@ -113,6 +116,10 @@ public final class Supervisor {
 
     public Options withCopyVault(boolean copy) {
       return new Options(runDir, quiet, clock, console, observer, preemption, copy);
+    }
+
+    public Options withObserver(RunObserver o) {
+      return new Options(runDir, quiet, clock, console, o, preemption, copyVault);
     }
   }
 
@@ -154,7 +161,10 @@ public final class Supervisor {
   private RunDirectory dir;
   private AuditLog audit;
   private ControlFile control;
-  private MetricsIntake intake;
+  /** Every source of the read plan (stdout, stderr, followed files), one step axis. */
+  private MetricsSources intake;
+  private int[] stdoutSources = new int[0];
+  private int[] stderrSources = new int[0];
   private GuardEngine engine;
   private CheckpointLedger ledger;
   private BufferedWriter metricsOut;
@@ -285,7 +295,7 @@ public final class Supervisor {
     }
     audit = AuditLog.open(dir.privateFile(RunDirectory.AUDIT), clock);
     control = new ControlFile(dir.file(RunDirectory.CONTROL), 0);
-    intake = new MetricsIntake(rules.read());
+    openSources();
     engine = new GuardEngine(rules);
     ledger = newLedger();
     if (ledger != null) {
@@ -307,6 +317,26 @@ public final class Supervisor {
     lastMetricMillis = clock.millis();
   }
 
+  /** Opens the read plan's sources; followed files feed lines from their own threads. */
+  private void openSources() {
+    intake = new MetricsSources(rules.read());
+    stdoutSources = intake.sourcesOf(ReadPlan.Source.STDOUT);
+    stderrSources = intake.sourcesOf(ReadPlan.Source.STDERR);
+    intake.follow(workdir, FOLLOW_INTERVAL, (source, line, cut) -> {
+      synchronized (lock) {
+        if (interrupted || finished) {
+          return;
+        }
+        try {
+          handle(source, line, cut);
+        } catch (IOException e) {
+          requests.add(new Request.End(null));
+          options.console().println("stepwarden: " + e.getMessage());
+        }
+      }
+    });
+  }
+
   private CheckpointLedger newLedger() {
     return rules.checkpoints().map(c -> new CheckpointLedger(workdir, c.watch(),
         new CheckpointVault(dir.file(RunDirectory.VAULT), c.keep(), options.copyVault()),
@@ -321,7 +351,7 @@ public final class Supervisor {
     long tornBytes = cutTornAuditTail(dir.file(RunDirectory.AUDIT));
     audit = AuditLog.open(dir.privateFile(RunDirectory.AUDIT), clock);
     control = new ControlFile(dir.file(RunDirectory.CONTROL), st.path("control_revision").asLong());
-    intake = new MetricsIntake(rules.read());
+    openSources();
     engine = new GuardEngine(rules);
     engine.restore(StateFile.engine(st.path("engine")));
     attempt = st.path("attempt").asInt();
@@ -482,10 +512,10 @@ public final class Supervisor {
         .stderrLog(dir.privateFile(RunDirectory.STDERR))
         .echo(!options.quiet())
         .stopGrace(rules.run().stopGrace())
+        .maxLineChars(rules.read().lineLimit())
         .build();
-    ReadPlan.Source source = rules.read().source();
-    trainer = TrainerProcess.start(spec, (stream, line) -> onLine(gen, stream.name(), line,
-        source));
+    trainer = TrainerProcess.start(spec, (stream, line) -> onLine(gen,
+        stream == TrainerStream.STDERR, line));
     Map<String, Object> f = new LinkedHashMap<>();
     f.put("attempt", attempt);
     f.put("reason", reason);
@@ -513,8 +543,7 @@ public final class Supervisor {
     return Double.toString(rate);
   }
 
-  private void onLine(int gen, String stream, String line, ReadPlan.Source source) {
-    boolean stderr = stream.equals("STDERR");
+  private void onLine(int gen, boolean stderr, String line) {
     synchronized (lock) {
       if (gen != generation || interrupted) {
         return; // a stopped trainer's last words: its decisions are no longer ours to make
@@ -525,11 +554,10 @@ public final class Supervisor {
         }
         recentStderr.addLast(line.length() > 500 ? line.substring(0, 500) : line);
       }
-      if ((source == ReadPlan.Source.STDERR) != stderr) {
-        return;
-      }
       try {
-        handle(line);
+        for (int i : stderr ? stderrSources : stdoutSources) {
+          handle(i, line, false);
+        }
       } catch (IOException e) {
         requests.add(new Request.End(null));
         options.console().println("stepwarden: " + e.getMessage());
@@ -537,9 +565,9 @@ public final class Supervisor {
     }
   }
 
-  private void handle(String line) throws IOException {
+  private void handle(int source, String line, boolean cut) throws IOException {
     long now = clock.millis();
-    MetricsIntake.Reading r = intake.accept(line, now);
+    MetricsIntake.Reading r = intake.accept(source, line, now, cut);
     if (r == null) {
       warnMissingKeys();
       return;
@@ -594,20 +622,18 @@ public final class Supervisor {
     if (missingWarned || intake.lines() < MISSING_KEY_WARNING_AFTER) {
       return;
     }
-    missingWarned = true;
-    List<String> missing = intake.missingSeries();
-    if (!missing.isEmpty()) {
-      Map<String, Object> f = new LinkedHashMap<>();
-      f.put("missing", missing);
-      f.put("after_lines", intake.lines());
-      f.put("keys_seen", intake.keysSeen());
-      String msg = "no line had " + String.join(", ", missing) + " after " + intake.lines()
-          + " lines; keys seen: " + String.join(", ", intake.keysSeen());
-      f.put("message", msg);
-      audit.append("warning", f);
-      options.console().println("stepwarden: warning: " + msg);
+    Optional<String> msg = intake.missingKeysWarning(MISSING_KEY_WARNING_AFTER);
+    if (msg.isEmpty()) {
+      return;
     }
+    missingWarned = true;
+    Map<String, Object> f = new LinkedHashMap<>();
+    f.put("after_lines", intake.lines());
+    f.put("message", msg.get());
+    audit.append("warning", f);
+    options.console().println("stepwarden: warning: " + msg.get());
   }
+
 
   private void act(Decision d) throws IOException {
     interventions++;
@@ -983,6 +1009,8 @@ public final class Supervisor {
     f.put("lines", intake.lines());
     f.put("metric_lines", intake.metricLines());
     f.put("ignored_lines", intake.ignoredLines());
+    f.put("oversized_lines", intake.oversizedLines()
+        + (trainer == null ? 0 : trainer.oversizedLines()));
     boolean suspended = outcome == RunOutcome.REQUEUE;
     audit.append(suspended ? "run-suspended" : "run-end", f);
     saveState(!suspended, outcome.name().toLowerCase(Locale.ROOT).replace('_', '-'));
@@ -1025,6 +1053,9 @@ public final class Supervisor {
   }
 
   private void closeQuietly() {
+    if (intake != null) {
+      intake.close(); // before taking the lock: the followers' callback takes it too
+    }
     try {
       synchronized (lock) {
         if (metricsOut != null) {
