@@ -64,7 +64,7 @@ class KillNineFaultsTest {
       Process sup = new ProcessBuilder(cmd).directory(n.work.toFile())
           .redirectOutput(n.work.resolve("supervisor.out").toFile()).redirectErrorStream(true)
           .start();
-      long delay = 300 + random.nextInt(1500);
+      long delay = 700 + random.nextInt(1300); // JVM start to mid-run on this machine
       killAt.add(delay);
       List<ProcessHandle> tree = new ArrayList<>();
       long end = System.nanoTime() + TimeUnit.MILLISECONDS.toNanos(delay);

@@ -63,7 +63,7 @@ class TrainerFaultsTest {
       gaps.append(gap).append(k < 3 ? ", " : "");
       assertThat(gap).as("back-off before restart %d", k).isGreaterThanOrEqualTo(100L << (k - 1));
     }
-    assertThat(ofType(audit, "run-end").get(0).get("outcome")).isEqualTo("gave_up");
+    assertThat(ofType(audit, "run-end").get(0).get("outcome")).isEqualTo("gave-up");
     System.out.println("crash loop: 4 crashes, exit 4, back-off gaps " + gaps + " ms");
   }
 
