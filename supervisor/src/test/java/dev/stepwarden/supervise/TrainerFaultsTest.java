@@ -85,7 +85,7 @@ class TrainerFaultsTest {
   }
 
   @Test
-  void metricsFileDeletedAndReplacedMidRunIsFollowedToTheEnd() throws Exception {
+  void metricsFileDeletedAndReplacedMidRunIsFollowedToTheEndInA0700RunDirectory() throws Exception {
     // Writes 30 steps, deletes the file, writes a new one (a new inode) with steps 31..60, then
     // renames a third file over it with steps 61..90.
     String script = "import json, os, time\n"
@@ -109,5 +109,14 @@ class TrainerFaultsTest {
     assertThat(steps).doesNotHaveDuplicates();
     System.out.println("metrics file deleted then replaced: " + steps.size()
         + " of 90 steps read");
+    // The same real run directory: folders 0700, files 0600 (logs, audit, metrics, state).
+    try (java.util.stream.Stream<Path> all = Files.walk(r.runDir)) {
+      for (Path p : all.toList()) {
+        String perms = java.nio.file.attribute.PosixFilePermissions.toString(
+            Files.getPosixFilePermissions(p));
+        assertThat(perms).as(p.toString())
+            .isEqualTo(Files.isDirectory(p) ? "rwx------" : "rw-------");
+      }
+    }
   }
 }
