@@ -525,8 +525,9 @@ public final class GuardFiles {
 
   private Double ranged(Key k, Scalar s, double v, String where) throws ConfigException {
     if (v < k.min() || v > k.max()) {
-      throw fail(s, where + " is " + s.text + "; it must lie between " + k.min() + " and "
-          + k.max());
+      String range = k.min() == Double.MIN_NORMAL ? "above 0 and at most " + k.max()
+          : "between " + k.min() + " and " + k.max();
+      throw fail(s, where + " is " + s.text + "; it must lie " + range);
     }
     return v;
   }

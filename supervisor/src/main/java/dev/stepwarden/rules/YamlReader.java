@@ -10,7 +10,17 @@ import java.nio.ByteBuffer;
 import java.util.ArrayList;
 import java.util.LinkedHashMap;
 import java.util.List;
+import java.util.Optional;
+import org.snakeyaml.engine.v2.api.LoadSettings;
+import org.snakeyaml.engine.v2.api.lowlevel.Parse;
+import org.snakeyaml.engine.v2.events.AliasEvent;
+import org.snakeyaml.engine.v2.events.CollectionStartEvent;
+import org.snakeyaml.engine.v2.events.Event;
+import org.snakeyaml.engine.v2.events.NodeEvent;
+import org.snakeyaml.engine.v2.events.ScalarEvent;
+import org.snakeyaml.engine.v2.exceptions.Mark;
 import org.snakeyaml.engine.v2.exceptions.MarkedYamlEngineException;
+import org.snakeyaml.engine.v2.exceptions.YamlEngineException;
 import tools.jackson.core.JacksonException;
 import tools.jackson.core.JsonParser;
 import tools.jackson.core.JsonToken;
@@ -57,6 +67,7 @@ final class YamlReader {
           "the file is empty; a guard file needs at least a 'run' section with a command");
     }
     refuseTabIndentation(text);
+    scanEvents(text);
     try (JsonParser parser = MAPPER.createParser(text)) {
       JsonToken first = parser.nextToken();
       if (first == null) {
@@ -86,6 +97,43 @@ final class YamlReader {
       }
       throw new ConfigException(file, line, col,
           "this is not valid YAML (" + why + "); check the indentation and quotes");
+    }
+  }
+
+  /**
+   * Walks snakeyaml's event stream before anything is built and refuses anchors, aliases and
+   * explicit tags ({@code !!java/object}, {@code !!str}, {@code !custom}): Jackson reports neither
+   * an anchor on a scalar nor a tag, so a scan of its tokens alone lets both through. Events are
+   * not expanded, so an alias bomb costs one pass over the text. A syntax error ends the scan;
+   * the Jackson pass below then reports it with its place.
+   */
+  private void scanEvents(String text) throws ConfigException {
+    LoadSettings settings = LoadSettings.builder().setMaxAliasesForCollections(Integer.MAX_VALUE)
+        .setCodePointLimit(MAX_BYTES + 1).build();
+    try {
+      for (Event e : new Parse(settings).parseString(text)) {
+        Mark m = e.getStartMark().orElse(null);
+        int line = m == null ? 1 : m.getLine() + 1;
+        int col = m == null ? 1 : m.getColumn() + 1;
+        if (e instanceof AliasEvent a) {
+          throw new ConfigException(file, line, col, "YAML aliases (*"
+              + a.getAlias().getValue() + ") are not accepted in a guard file; write the value out in full");
+        }
+        if (e instanceof NodeEvent n && n.getAnchor().isPresent()) {
+          throw new ConfigException(file, line, col, "YAML anchors (&"
+              + n.getAnchor().get().getValue() + ") are not accepted in a guard file; write the value out in full");
+        }
+        Optional<String> tag = e instanceof ScalarEvent s ? s.getTag()
+            : e instanceof CollectionStartEvent c ? c.getTag() : Optional.empty();
+        if (tag.isPresent()) {
+          String shown = tag.get().replace("tag:yaml.org,2002:", "!!");
+          throw new ConfigException(file, line, col, "YAML tags (" + shown + ") are not"
+              + " accepted in a guard file; nothing in it is ever turned into an object or"
+              + " evaluated: remove the tag and write the plain value");
+        }
+      }
+    } catch (YamlEngineException e) {
+      // not valid YAML: the Jackson pass gives the message with its place
     }
   }
 

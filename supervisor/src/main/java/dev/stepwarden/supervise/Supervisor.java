@@ -22,7 +22,6 @@ import java.io.PrintStream;
 import java.nio.charset.StandardCharsets;
 import java.nio.file.Files;
 import java.nio.file.Path;
-import java.nio.file.StandardCopyOption;
 import java.nio.file.StandardOpenOption;
 import java.nio.channels.FileChannel;
 import java.time.Instant;
@@ -290,8 +289,8 @@ public final class Supervisor {
     rules = rules.withRun(new GuardFile.Run(rules.run().name(), rules.run().command(),
         rules.run().learningRate(), workdir, rules.run().env(), rules.run().stopGrace()));
     if (rules.source() != null && Files.isRegularFile(rules.source())) {
-      Files.copy(rules.source(), dir.privateFile(RunDirectory.GUARDS),
-          StandardCopyOption.REPLACE_EXISTING);
+      // Written into the 0600 file: Files.copy would give it the source's mode (often 0644).
+      Files.write(dir.privateFile(RunDirectory.GUARDS), Files.readAllBytes(rules.source()));
     }
     audit = AuditLog.open(dir.privateFile(RunDirectory.AUDIT), clock);
     control = new ControlFile(dir.file(RunDirectory.CONTROL), 0);
