@@ -150,8 +150,10 @@ class SteeringTest {
   @Test
   void crashWithAnOutOfMemoryMessageRestartsFromTheLastVaultCheckpoint() throws Exception {
     Night n = new Night(tmp);
+    // The crash comes 0.9 s after the step-60 checkpoint: longer than the ledger's settle time,
+    // so that checkpoint counts even on a loaded machine (a file still changing never does).
     Supervisor.Result r = n.run(n.rules("--steps, \"110\", --eval-every, \"20\", --delay,"
-        + " \"0.03\", --numbered, --crash-at, \"70\"",
+        + " \"0.05\", --numbered, --crash-at, \"78\"",
         "checkpoints: { watch: ckpt/step-*.json, keep: 3 }\n"
             + "limits:\n  crash_restarts: 2\n  crash_backoff: 100ms\n  silence: 10s\n"));
 
