@@ -12,7 +12,19 @@ final class Catalogue {
   private Catalogue() {}
 
   static final List<String> TOP = List.of("run", "read", "steer", "checkpoints", "guards",
-      "limits");
+      "limits", "probe");
+
+  static final List<Key> PROBE = List.of(
+      Key.number("from", 1e-5, Double.MIN_NORMAL, 1e6, "The rate the range test starts at."),
+      Key.number("to", 10.0, Double.MIN_NORMAL, 1e6, "The rate it ends at (it stops sooner"
+          + " when the loss runs away)."),
+      Key.integer("steps", 40, 4, 100_000, "How many rates, spaced geometrically from 'from'"
+          + " to 'to'."),
+      Key.integer("hold", 2, 1, 100_000, "Training samples each rate is held for (after the"
+          + " trainer confirmed it)."),
+      Key.number("pick", 0.3, 1e-6, 1, "The run starts at this fraction of the range's upper"
+          + " end (the rate where the smoothed loss was lowest before it turned ragged or"
+          + " rose)."));
 
   static final List<Key> RUN = List.of(
       Key.text("name", null, "A name for the run, used in reports (default: the file's name)."),

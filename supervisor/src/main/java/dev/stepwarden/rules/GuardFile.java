@@ -15,10 +15,12 @@ import java.util.Optional;
  * {@link GuardFiles#load(Path)}, so the rest of the supervisor never re-validates.
  */
 public record GuardFile(Path source, Run run, ReadPlan read, Steer steer,
-    Optional<Checkpoints> checkpoints, List<Guard> guards, Limits limits) {
+    Optional<Checkpoints> checkpoints, List<Guard> guards, Limits limits,
+    Optional<Probe> probe) {
 
   public GuardFile {
     Objects.requireNonNull(run, "run");
+    probe = probe == null ? Optional.empty() : probe;
     Objects.requireNonNull(read, "read");
     Objects.requireNonNull(steer, "steer");
     Objects.requireNonNull(limits, "limits");
@@ -26,16 +28,40 @@ public record GuardFile(Path source, Run run, ReadPlan read, Steer steer,
     checkpoints = checkpoints == null ? Optional.empty() : checkpoints;
   }
 
+  /** A file without a rate probe. */
+  public GuardFile(Path source, Run run, ReadPlan read, Steer steer,
+      Optional<Checkpoints> checkpoints, List<Guard> guards, Limits limits) {
+    this(source, run, read, steer, checkpoints, guards, limits, Optional.empty());
+  }
+
   /** The same file with another run section (the demo and the queue adjust paths). */
   public GuardFile withRun(Run newRun) {
-    return new GuardFile(source, newRun, read, steer, checkpoints, guards, limits);
+    return new GuardFile(source, newRun, read, steer, checkpoints, guards, limits, probe);
   }
 
   /** The same file with the command replaced (a command given after {@code --} wins). */
   public GuardFile withCommand(List<String> command) {
     return new GuardFile(source, run.withCommand(command), read, steer, checkpoints, guards,
-        limits);
+        limits, probe);
   }
+
+  /** The same file with other guards (the benchmark's unsupervised runs have none). */
+  public GuardFile withGuards(List<Guard> newGuards) {
+    return new GuardFile(source, run, read, steer, checkpoints, newGuards, limits, probe);
+  }
+
+  /** The same file with or without a rate probe. */
+  public GuardFile withProbe(Optional<Probe> newProbe) {
+    return new GuardFile(source, run, read, steer, checkpoints, guards, limits, newProbe);
+  }
+
+  /**
+   * A learning-rate range test before the real run (Smith 2017, s3.3): the rate rises
+   * geometrically from {@code from} to {@code to}, each rate held for {@code hold} training
+   * samples, over at most {@code steps} rates; the usable range is read off the loss curve
+   * ({@link RangeTest}) and the run starts from scratch at {@code pick} times its upper end.
+   */
+  public record Probe(double from, double to, int steps, int hold, double pick) {}
 
   /**
    * What to launch.

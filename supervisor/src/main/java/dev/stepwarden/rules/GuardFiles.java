@@ -85,7 +85,8 @@ public final class GuardFiles {
           + "]; move it inside or widen the limits");
     }
     List<GuardFile.Guard> guards = guards(top.entries.get("guards"), read);
-    return new GuardFile(file, runSpec, read, steer, ckpt, guards, limits);
+    Optional<GuardFile.Probe> probe = probe(top, steer, read);
+    return new GuardFile(file, runSpec, read, steer, ckpt, guards, limits, probe);
   }
 
   private ReadPlan read(MapNode node) throws ConfigException {
@@ -208,6 +209,31 @@ public final class GuardFiles {
           + " working directory; write it relative to workdir, without '..' or a leading '/'");
     }
     return Optional.of(new GuardFile.Checkpoints(watch, (Integer) v.get("keep")));
+  }
+
+  private Optional<GuardFile.Probe> probe(MapNode top, GuardFile.Steer steer, ReadPlan read)
+      throws ConfigException {
+    ConfigNode raw = top.entries.get("probe");
+    if (raw == null || (raw instanceof Scalar s && s.type == Scalar.Type.NULL)) {
+      return Optional.empty();
+    }
+    MapNode node = map(raw, "probe");
+    Map<String, Object> v = values(node, Catalogue.PROBE, "probe");
+    double from = (Double) v.get("from");
+    double to = (Double) v.get("to");
+    if (from >= to) {
+      throw fail(node, "probe.from " + from + " is not below probe.to " + to
+          + "; the range test raises the rate, so give from < to");
+    }
+    if (steer.by() != GuardFile.Steer.Method.CONTROL_FILE) {
+      throw fail(node, "the probe ramps the rate through the control file; set steer.by:"
+          + " control-file or remove the probe section");
+    }
+    if (!read.allSeries().containsKey("train")) {
+      throw fail(node, "the probe reads the 'train' series; name it in read.series");
+    }
+    return Optional.of(new GuardFile.Probe(from, to, (Integer) v.get("steps"),
+        (Integer) v.get("hold"), (Double) v.get("pick")));
   }
 
   private GuardFile.Limits limits(MapNode node) throws ConfigException {

@@ -34,6 +34,7 @@ public final class Schema {
         "items", object(Catalogue.READ_ALSO, ordered())))));
     props.put("steer", object(Catalogue.STEER, ordered()));
     props.put("checkpoints", object(Catalogue.CHECKPOINTS, ordered()));
+    props.put("probe", object(Catalogue.PROBE, ordered()));
     props.put("limits", object(Catalogue.LIMITS,
         ordered("learning_rate", object(Catalogue.RATE_LIMITS, ordered()))));
     Map<String, Object> guards = new LinkedHashMap<>();

@@ -186,6 +186,8 @@ public final class Supervisor {
   private long stateSavedStep = -1;
   private long stateSavedMillis;
   private JsonNode resumed;
+  /** Non-null while the rate probe's throw-away launch runs. */
+  private RateProbe probing;
 
   private record Pending(long revision, double rate, long sinceMillis, long decisionSeq) {}
 
@@ -232,6 +234,9 @@ public final class Supervisor {
   public Result run() throws IOException, InterruptedException {
     if (resumed == null) {
       prepare();
+      if (rules.probe().isPresent()) {
+        probe(rules.probe().get());
+      }
     } else {
       prepareResume();
     }
@@ -314,6 +319,61 @@ public final class Supervisor {
     f.put("guards", rules.guards().stream().map(GuardFile.Guard::name).toList());
     audit.append("run-start", f);
     lastMetricMillis = clock.millis();
+  }
+
+  /**
+   * The rate probe: a throw-away launch whose rate is ramped through the control file, stopped
+   * when the ramp ends or the loss runs away; the range read off it ({@code RangeTest}) sets the
+   * starting rate, and the real run then starts from scratch. Its checkpoints are baselined so
+   * that no rewind ever lands on them.
+   */
+  private void probe(GuardFile.Probe p) throws IOException, InterruptedException {
+    RateProbe rp = new RateProbe(p, rules.read());
+    synchronized (lock) {
+      probing = rp;
+      control.publish(rp.rate(), "(probe)", 0);
+    }
+    launch("rate probe", 0);
+    while (true) {
+      synchronized (lock) {
+        if (rp.done() || interrupted) {
+          break;
+        }
+      }
+      if (trainer.waitFor(Duration.ofMillis(50)).isPresent()) {
+        break;
+      }
+    }
+    trainer.stop();
+    synchronized (lock) {
+      generation++;
+      probing = null;
+      rp.close();
+      dev.stepwarden.rules.RangeTest.Reading r = rp.reading();
+      double rate = rules.run().learningRate();
+      if (r.found()) {
+        rate = Math.min(rules.limits().maxRate(), Math.max(rules.limits().minRate(), r.pick()));
+        GuardFile.Run run = rules.run();
+        rules = rules.withRun(new GuardFile.Run(run.name(), run.command(), rate, run.workdir(),
+            run.env(), run.stopGrace()));
+        engine = new GuardEngine(rules);
+      }
+      Map<String, Object> f = new LinkedHashMap<>();
+      f.put("steps", rp.steps());
+      f.put("found", r.found());
+      f.put("lower", r.found() ? r.lower() : null);
+      f.put("upper", r.found() ? r.upper() : null);
+      f.put("learning_rate", rate);
+      f.put("note", r.note());
+      f.put("levels", rp.levels());
+      audit.append("probe", f);
+      say("rate probe: " + r.note());
+      control.publish(rate, "(probe result)", 0);
+      if (ledger != null) {
+        ledger.baseline();
+      }
+      lastMetricMillis = clock.millis();
+    }
   }
 
   /** Opens the read plan's sources; followed files feed lines from their own threads. */
@@ -546,6 +606,17 @@ public final class Supervisor {
     synchronized (lock) {
       if (gen != generation || interrupted) {
         return; // a stopped trainer's last words: its decisions are no longer ours to make
+      }
+      if (probing != null) {
+        double next = probing.accept(stderr, line, clock.millis());
+        if (Double.isFinite(next)) {
+          try {
+            control.publish(next, "(probe)", probing.steps());
+          } catch (IOException e) {
+            probing.finish();
+          }
+        }
+        return;
       }
       if (stderr) {
         if (recentStderr.size() == 20) {
