@@ -35,6 +35,12 @@ public final class Explain {
         : "A new rate is written to the control file; the trainer has "
             + f.steer().confirmWithin().toSeconds() + " s to confirm it"
             + (f.steer().restartWhenUnconfirmed() ? ", else it is restarted with it." : "."));
+    f.probe().ifPresent(p -> out.add("Before the run, a rate probe raises the rate from "
+        + num(p.from()) + " to " + num(p.to()) + " in " + p.steps() + " steps (" + p.hold()
+        + " samples each), reads the usable range off the loss (where it starts to fall to where"
+        + " it turns ragged or rises), starts at " + num(p.pick()) + "x its upper end, and"
+        + " starts the trainer again from scratch with that rate (range test, Smith 2017,"
+        + " s3.3)."));
     f.checkpoints().ifPresent(c -> out.add("Checkpoints: files matching " + c.watch()
         + "; the vault keeps the best and the last " + c.keep() + " healthy ones."));
     if (f.guards().isEmpty()) {
