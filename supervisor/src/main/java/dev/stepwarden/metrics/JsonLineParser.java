@@ -139,6 +139,24 @@ final class JsonLineParser implements LineParser {
 
   /** Reads a key (after its opening quote) into keyBuf after the prefix; returns the new length. */
   private int readKey(int prefixLen) {
+    // Fast path: a key without escapes or control chars is copied in one go.
+    int start = pos;
+    int p = pos;
+    byte[] l = line;
+    while (p < end) {
+      byte c = l[p];
+      if (c == '"') {
+        int len = p - start;
+        ensure(prefixLen + len);
+        System.arraycopy(l, start, keyBuf, prefixLen, len);
+        pos = p + 1;
+        return prefixLen + len;
+      }
+      if (c == '\\' || (c >= 0 && c < 0x20)) {
+        break;
+      }
+      p++;
+    }
     int n = prefixLen;
     while (true) {
       if (pos >= end) {

@@ -38,7 +38,7 @@ public final class MetricsIntake {
   }
 
   private static final int KEYS_SEEN_MAX = 256;
-  private static final long KEYS_SEEN_LINES = 100_000;
+  private static final long KEYS_SEEN_LINES = 10_000;
   private static final int STEP = 0;
   private static final int EPOCH = 1;
   private static final int RATE = 2;
@@ -77,6 +77,9 @@ public final class MetricsIntake {
   private long oversized;
   private long inferredStep;
   private long lastStep = -1;
+  /** The names array of the last sample, shared by the next one of the same shape. */
+  private String[] lastNames;
+  private long lastShape;
 
   public MetricsIntake(ReadPlan plan) {
     this(plan, null);
@@ -209,21 +212,29 @@ public final class MetricsIntake {
   private Reading read(long wallMillis) {
     SeriesValues sv = null;
     int count = 0;
+    long shape = 0; // which series this line carried (the first 64)
     for (int i = FIRST_SERIES; i < values.length; i++) {
       if (has(i)) {
         count++;
+        shape |= 1L << ((i - FIRST_SERIES) & 63);
       }
     }
     if (count > 0) {
-      String[] names = new String[count];
-      double[] vals = new double[count];
+      boolean same = shape == lastShape && lastNames != null && lastNames.length == count
+          && seriesNames.length <= 64;
+      String[] names = same ? lastNames : new String[count];
+      Double[] vals = new Double[count];
       int k = 0;
       for (int i = FIRST_SERIES; i < values.length; i++) {
         if (has(i)) {
-          names[k] = seriesNames[i - FIRST_SERIES];
+          if (!same) {
+            names[k] = seriesNames[i - FIRST_SERIES];
+          }
           vals[k++] = values[i];
         }
       }
+      lastShape = shape;
+      lastNames = names;
       sv = new SeriesValues(names, vals);
     }
     boolean rate = has(RATE);

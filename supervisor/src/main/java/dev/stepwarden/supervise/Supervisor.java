@@ -673,10 +673,10 @@ public final class Supervisor {
       return;
     }
     Optional<String> msg = intake.missingKeysWarning(MISSING_KEY_WARNING_AFTER);
+    missingWarned = true; // decided once: the sources give their warning at most once
     if (msg.isEmpty()) {
       return;
     }
-    missingWarned = true;
     Map<String, Object> f = new LinkedHashMap<>();
     f.put("after_lines", intake.lines());
     f.put("message", msg.get());
