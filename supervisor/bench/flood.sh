@@ -5,6 +5,7 @@
 #   3. IntakeFlood: cat FILE via the process layer -> intake -> guard engine (one JVM)
 #   4. stepwarden run --rules G -- cat FILE           (the whole supervisor, run dir and all)
 #   5. a Python trainer flooding stdout: to /dev/null vs under stepwarden run
+#   6. stepwarden run -- cat FILE FILE: peak resident memory after 2 x LINES samples
 # Usage: supervisor/bench/flood.sh [LINES]   (default 5000000). Needs python3, /usr/bin/time.
 set -eu
 N=${1:-5000000}
@@ -19,6 +20,9 @@ mvn -B -q -DskipTests package dependency:build-classpath -Dmdep.outputFile=targe
   -Dmdep.includeScope=test >/dev/null
 CP="target/test-classes:target/classes:$(cat target/flood.classpath)"
 JAR=target/stepwarden.jar
+# The supervisor's JVM as the README alias launches it: a small serial-collected heap (the
+# intake allocates little and keeps bounded windows), so resident memory stays flat.
+JVM=${STEPWARDEN_JVM_OPTS:--XX:+UseSerialGC -Xms32m -Xmx256m}
 
 python3 - "$N" "$F" <<'PY'
 import json, math, random, sys
@@ -42,7 +46,7 @@ for line in sys.stdin: json.loads(line)' < "$F"; } 2>&1 | tail -1)
 echo "python json.loads:    ${T_PY}s  $(rate "$T_PY")"
 
 echo "IntakeFlood (process layer + intake + guards, one JVM):"
-java -Xmx256m -cp "$CP" dev.stepwarden.metrics.IntakeFlood "$F"
+java $JVM -cp "$CP" dev.stepwarden.metrics.IntakeFlood "$F"
 
 cat > "$W/flood.yaml" <<YAML
 run: { name: flood, learning_rate: 0.001 }
@@ -52,10 +56,11 @@ guards:
     when: { rises: { series: train, above_best: 3.0, samples: 3 } }
     do: { scale: 0.5 }
 YAML
-/usr/bin/time -o "$W/time.txt" -f "%e %M" java -jar "$JAR" run --quiet --rules "$W/flood.yaml" \
+/usr/bin/time -o "$W/time.txt" -f "%e %M" java $JVM -jar "$JAR" run --quiet --rules "$W/flood.yaml" \
   --run-dir "$W/runs" -- cat "$F" >/dev/null 2>"$W/run.err" || true
 OUT=$(tail -1 "$W/time.txt")
 T_RUN=${OUT% *}; RSS_KB=${OUT#* }
+rm -rf "$W/runs" # the logs of a flood are as big as the file: free the space
 echo "stepwarden run -- cat: ${T_RUN}s  $(rate "$T_RUN")  peak RSS $((RSS_KB / 1024)) MB"
 python3 -c "import sys; c,r,p=map(float,sys.argv[1:]); print(f'ratios: run/cat = {c/r:.1%} of the pipe rate; run vs python = {p/r:.1f}x')" \
   "$T_CAT" "$T_RUN" "$T_PY"
@@ -70,9 +75,17 @@ print(f"trainer_seconds={time.perf_counter() - t:.3f}", file=sys.stderr)
 PY
 M=$((N / 5))
 A=$(python3 "$W/trainer.py" "$M" 2>&1 >/dev/null | sed 's/.*=//')
-java -jar "$JAR" run --quiet --rules "$W/flood.yaml" --run-dir "$W/runs2" -- python3 \
+java $JVM -jar "$JAR" run --quiet --rules "$W/flood.yaml" --run-dir "$W/runs2" -- python3 \
   "$W/trainer.py" "$M" >/dev/null 2>"$W/run2.err" || true
-B=$(grep -ho 'trainer_seconds=[0-9.]*' "$W"/runs2/*/trainer.stderr.log 2>/dev/null | sed 's/.*=//' | tail -1)
+# --run-dir names the run directory itself; the trainer's stderr log is in it
+B=$(cat "$W"/runs2/trainer.stderr.log "$W"/runs2/*/trainer.stderr.log 2>/dev/null \
+  | grep -o 'trainer_seconds=[0-9.]*' | sed 's/.*=//' | tail -1)
+rm -rf "$W/runs2"
 echo "trainer flooding $M lines: to /dev/null ${A}s, under stepwarden ${B:-?}s"
 [ -n "${B:-}" ] && python3 -c "import sys; a,b=map(float,sys.argv[1:]); print(f'trainer slowdown: {b/a-1:+.1%}')" "$A" "$B"
+
+/usr/bin/time -o "$W/time3.txt" -f "%e %M" java $JVM -jar "$JAR" run --quiet --rules "$W/flood.yaml" \
+  --run-dir "$W/runs3" -- cat "$F" "$F" >/dev/null 2>"$W/run3.err" || true
+OUT=$(tail -1 "$W/time3.txt")
+echo "stepwarden run -- cat FILE FILE ($((2 * N)) samples): ${OUT% *}s  peak RSS $((${OUT#* } / 1024)) MB"
 exit 0

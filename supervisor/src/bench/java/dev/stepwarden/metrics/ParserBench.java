@@ -36,17 +36,47 @@ public class ParserBench {
     }
   }
 
+  /** A calm stretch of training (no guard fires): 4096 Python-printed lines, 17-digit losses. */
+  static final byte[][] CALM = new byte[4096][];
+
+  static {
+    java.util.Random r = new java.util.Random(2);
+    for (int i = 0; i < CALM.length; i++) {
+      double loss = 0.5 + 0.01 * r.nextDouble();
+      CALM[i] = ("{\"step\": " + (100_000 + i) + ", \"epoch\": 3, \"loss\": "
+          + NumberExactnessTest.pythonRepr(loss) + ", \"lr\": 0.001}")
+          .getBytes(java.nio.charset.StandardCharsets.UTF_8);
+    }
+  }
+
+  private int calm;
+
   private final JsonLineParser fast = new JsonLineParser();
   private final JacksonJsonLineParser jackson = new JacksonJsonLineParser();
   private final PairsLineParser pairs = new PairsLineParser();
   private MetricsIntake intake;
+  private MetricsIntake guarded;
+  private dev.stepwarden.rules.GuardEngine engine;
   private int i;
   private String[] pairLines;
 
   @Setup
-  public void setup() {
+  public void setup() throws Exception {
     intake = new MetricsIntake(new ReadPlan(ReadPlan.Source.STDOUT, null, ReadPlan.Format.JSON,
         null, "step", "epoch", "lr", Map.of("train", "loss")));
+    dev.stepwarden.rules.GuardFile rules = dev.stepwarden.rules.GuardFiles.parse(String.join("\n",
+        "run: { command: [cat], learning_rate: 0.001 }",
+        "read: { from: stdout, step: step, series: { train: loss } }",
+        "guards:",
+        "  - name: blow-up",
+        "    when: { rises: { series: train, above_best: 3.0, samples: 3 } }",
+        "    do: { scale: 0.5 }",
+        "  - name: nan",
+        "    when: { breaks: { series: train } }",
+        "    do: stop",
+        "").getBytes(java.nio.charset.StandardCharsets.UTF_8), java.nio.file.Path.of("bench.yaml"));
+    guarded = new MetricsIntake(rules.read());
+    engine = new dev.stepwarden.rules.GuardEngine(rules);
     pairLines = new String[64];
     for (int k = 0; k < 64; k++) {
       pairLines[k] = SHORT[k].replaceAll("[{}\"]", "").replace(": ", "=").replace(",", "");
@@ -85,5 +115,16 @@ public class ParserBench {
   @Benchmark
   public Object intakeJsonRepr() {
     return intake.accept(REPR[next()], 0L);
+  }
+
+  /**
+   * The issue's one-core figure: a Python-printed JSON line (17-digit loss) read from the pump's
+   * bytes, made a sample and fed to the guard engine (a spike guard and a non-finite guard).
+   */
+  @Benchmark
+  public Object intakeAndGuardsFromBytes() {
+    byte[] b = CALM[calm = (calm + 1) & 4095];
+    MetricsIntake.Reading r = guarded.accept(b, 0, b.length, 0L, false);
+    return engine.onSample(r.sample());
   }
 }

@@ -87,6 +87,7 @@ final class DemoCommand implements Callable<Integer> {
     List<String> cmd = new ArrayList<>();
     cmd.add(Path.of(System.getProperty("java.home"), "bin", "java").toString());
     cmd.add("-XX:+UseSerialGC");
+    cmd.add("-Xmx128m"); // a small network on a small data set: keep the demo's footprint small
     cmd.add("-cp");
     cmd.add(ownClasspath());
     cmd.addAll(List.of("dev.stepwarden.demo.DemoTrainer", "--lr", "{learning_rate}",

@@ -5,10 +5,23 @@ interface LineParser {
   /** Receives each numeric (or non-finite) field of a line. */
   interface Fields {
     void put(String key, double value);
+
+    /**
+     * A field whose number is printed in {@code text[from, to)} as a valid JSON number (RFC 8259
+     * s. 6); the bytes are valid only during the call's line.
+     */
+    default void put(String key, double value, byte[] text, int from, int to) {
+      put(key, value);
+    }
   }
 
   /** Parses {@code line}; returns false when the line carries no metric at all. */
   boolean parse(String line, Fields out);
+
+  /** Parses the UTF-8 line {@code b[off, off+len)}; by default via a decoded string. */
+  default boolean parse(byte[] b, int off, int len, Fields out) {
+    return parse(new String(b, off, len, java.nio.charset.StandardCharsets.UTF_8), out);
+  }
 
   /** Reads the common spellings of numbers, including non-finite ones; NaN-boxed null if not. */
   static Double number(String text) {

@@ -38,6 +38,7 @@ public final class MetricsIntake {
   }
 
   private static final int KEYS_SEEN_MAX = 256;
+  private static final long KEYS_SEEN_LINES = 10_000;
   private static final int STEP = 0;
   private static final int EPOCH = 1;
   private static final int RATE = 2;
@@ -53,13 +54,32 @@ public final class MetricsIntake {
   private final double[] values;
   private final long[] stamp;
   private final Set<String> keysSeen = new HashSet<>();
-  private final LineParser.Fields sink = this::put;
+  /** Per slot: its key appeared in some line (cheaper than asking keysSeen on every line). */
+  private final boolean[] slotSeen;
+  /** Per slot, for the current line: where its number is printed (valid JSON), or from = -1. */
+  private final int[] textFrom;
+  private final int[] textTo;
+  private byte[] text;
+  private final LineParser.Fields sink = new LineParser.Fields() {
+    @Override
+    public void put(String key, double value) {
+      take(key, value, null, -1, -1);
+    }
+
+    @Override
+    public void put(String key, double value, byte[] t, int from, int to) {
+      take(key, value, t, from, to);
+    }
+  };
   private long lines;
   private long metricLines;
   private long ignored;
   private long oversized;
   private long inferredStep;
   private long lastStep = -1;
+  /** The names array of the last sample, shared by the next one of the same shape. */
+  private String[] lastNames;
+  private long lastShape;
 
   public MetricsIntake(ReadPlan plan) {
     this(plan, null);
@@ -81,6 +101,9 @@ public final class MetricsIntake {
     int n = FIRST_SERIES + plan.series().size();
     values = new double[n];
     stamp = new long[n];
+    slotSeen = new boolean[n];
+    textFrom = new int[n];
+    textTo = new int[n];
     seriesNames = plan.series().keySet().toArray(new String[0]);
     want(plan.stepKey(), STEP);
     want(plan.epochKey(), EPOCH);
@@ -102,15 +125,21 @@ public final class MetricsIntake {
     slots.put(key, now);
   }
 
-  private void put(String key, double v) {
-    if (keysSeen.size() < KEYS_SEEN_MAX) {
-      keysSeen.add(key);
+  private void take(String key, double v, byte[] t, int from, int to) {
+    if (lines <= KEYS_SEEN_LINES && keysSeen.size() < KEYS_SEEN_MAX) {
+      keysSeen.add(key); // for the warning's "keys seen", which is given after 1000 lines
     }
     int[] s = slots.get(key);
     if (s != null) {
       for (int slot : s) {
         values[slot] = v;
         stamp[slot] = lines;
+        slotSeen[slot] = true;
+        textFrom[slot] = from;
+        textTo[slot] = to;
+      }
+      if (t != null) {
+        text = t;
       }
     }
   }
@@ -139,23 +168,73 @@ public final class MetricsIntake {
       ignored++;
       return null;
     }
+    return read(wallMillis);
+  }
+
+  /**
+   * Like {@link #accept(String, long, boolean)} for the UTF-8 line {@code b[off, off+len)}, read
+   * in place where the format allows (JSON).
+   */
+  public Reading accept(byte[] b, int off, int len, long wallMillis, boolean cut) {
+    if (cut) {
+      oversized++;
+    }
+    lines++;
+    if (!parser.parse(b, off, len, sink)) {
+      ignored++;
+      return null;
+    }
+    return read(wallMillis);
+  }
+
+  /**
+   * Appends the value of {@code series} in the line just accepted as the trainer printed it,
+   * when that text is a valid JSON number; returns false (appending nothing) otherwise. Lets
+   * the normalized file carry numbers without formatting doubles again (the text parses back
+   * to the very same double).
+   */
+  public boolean appendPrinted(String series, StringBuilder out) {
+    for (int i = 0; i < seriesNames.length; i++) {
+      if (seriesNames[i].equals(series)) {
+        int slot = FIRST_SERIES + i;
+        if (!has(slot) || textFrom[slot] < 0 || text == null) {
+          return false;
+        }
+        for (int k = textFrom[slot]; k < textTo[slot]; k++) {
+          out.append((char) text[k]);
+        }
+        return true;
+      }
+    }
+    return false;
+  }
+
+  private Reading read(long wallMillis) {
     SeriesValues sv = null;
     int count = 0;
+    long shape = 0; // which series this line carried (the first 64)
     for (int i = FIRST_SERIES; i < values.length; i++) {
       if (has(i)) {
         count++;
+        shape |= 1L << ((i - FIRST_SERIES) & 63);
       }
     }
     if (count > 0) {
-      String[] names = new String[count];
-      double[] vals = new double[count];
+      boolean same = shape == lastShape && lastNames != null && lastNames.length == count
+          && seriesNames.length <= 64;
+      String[] names = same ? lastNames : new String[count];
+      Double[] vals = new Double[count];
       int k = 0;
       for (int i = FIRST_SERIES; i < values.length; i++) {
         if (has(i)) {
-          names[k] = seriesNames[i - FIRST_SERIES];
+          if (!same) {
+            names[k] = seriesNames[i - FIRST_SERIES];
+          }
           vals[k++] = values[i];
         }
       }
+      lastShape = shape;
+      lastNames = names;
       sv = new SeriesValues(names, vals);
     }
     boolean rate = has(RATE);
@@ -214,11 +293,12 @@ public final class MetricsIntake {
   /** Configured series whose key has not appeared in any line so far. */
   public List<String> missingSeries() {
     List<String> out = new ArrayList<>();
-    plan.series().forEach((name, key) -> {
-      if (!keysSeen.contains(key)) {
-        out.add(name + " (key '" + key + "')");
+    int i = FIRST_SERIES;
+    for (Map.Entry<String, String> e : plan.series().entrySet()) {
+      if (!slotSeen[i++]) {
+        out.add(e.getKey() + " (key '" + e.getValue() + "')");
       }
-    });
+    }
     return out;
   }
 

@@ -65,6 +65,17 @@ public final class MetricsSources implements AutoCloseable {
     return intakes.get(source).accept(line, wallMillis, cut);
   }
 
+  /** Feeds the UTF-8 line {@code b[off, off+len)} of source {@code source}, read in place. */
+  public MetricsIntake.Reading accept(int source, byte[] b, int off, int len, long wallMillis,
+      boolean cut) {
+    return intakes.get(source).accept(b, off, len, wallMillis, cut);
+  }
+
+  /** See {@link MetricsIntake#appendPrinted}: the number text of the line just accepted. */
+  public boolean appendPrinted(int source, String series, StringBuilder out) {
+    return intakes.get(source).appendPrinted(series, out);
+  }
+
   /**
    * Starts a {@link FileFollower} for every file source (relative paths against {@code workdir});
    * each delivers to {@code sink} on its own thread.
@@ -100,16 +111,29 @@ public final class MetricsSources implements AutoCloseable {
     intakes.forEach(in -> in.continueAfter(step));
   }
 
+  // Loops, not streams: the supervisor asks after every metric line.
   public long lines() {
-    return intakes.stream().mapToLong(MetricsIntake::lines).sum();
+    long n = 0;
+    for (int i = 0; i < intakes.size(); i++) {
+      n += intakes.get(i).lines();
+    }
+    return n;
   }
 
   public long metricLines() {
-    return intakes.stream().mapToLong(MetricsIntake::metricLines).sum();
+    long n = 0;
+    for (int i = 0; i < intakes.size(); i++) {
+      n += intakes.get(i).metricLines();
+    }
+    return n;
   }
 
   public long ignoredLines() {
-    return intakes.stream().mapToLong(MetricsIntake::ignoredLines).sum();
+    long n = 0;
+    for (int i = 0; i < intakes.size(); i++) {
+      n += intakes.get(i).ignoredLines();
+    }
+    return n;
   }
 
   public long oversizedLines() {

@@ -14,9 +14,11 @@ import java.util.Set;
  */
 final class SeriesValues extends AbstractMap<String, Double> {
   private final String[] names;
-  private final double[] values;
+  /** Boxed once here, so the guards' repeated {@link #get} calls box nothing. */
+  private final Double[] values;
 
-  SeriesValues(String[] names, double[] values) {
+  /** {@code names} is shared between samples of the same shape and never changed. */
+  SeriesValues(String[] names, Double[] values) {
     if (names.length != values.length) {
       throw new IllegalArgumentException("names and values differ in length");
     }
@@ -42,7 +44,7 @@ final class SeriesValues extends AbstractMap<String, Double> {
 
   private int indexOf(Object key) {
     for (int i = 0; i < names.length; i++) {
-      if (names[i].equals(key)) {
+      if (names[i] == key || names[i].equals(key)) {
         return i;
       }
     }

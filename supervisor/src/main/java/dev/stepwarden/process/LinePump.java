@@ -25,6 +25,9 @@ final class LinePump implements Runnable, LineSplitter.Sink {
   private final PrintStream echo;
   private final Consumer<Throwable> failures;
   private final LineSplitter splitter;
+  /** Non-null in batch mode: lines collect here and go out once per read. */
+  private final LineBatchListener batchListener;
+  private final LineBatch batch;
   private final CountDownLatch done = new CountDownLatch(1);
   private OutputStream log;
   private boolean listenerFailed;
@@ -42,6 +45,8 @@ final class LinePump implements Runnable, LineSplitter.Sink {
     this.echo = echo;
     this.failures = failures;
     this.splitter = new LineSplitter(maxLine);
+    this.batchListener = listener instanceof LineBatchListener b ? b : null;
+    this.batch = batchListener == null ? null : new LineBatch();
     this.echoBuf = echo == null ? null : new byte[8192];
   }
 
@@ -76,6 +81,7 @@ final class LinePump implements Runnable, LineSplitter.Sink {
         }
         writeLog(buf, n);
         splitter.feed(buf, 0, n, this);
+        flushBatch();
         flushEcho();
         publish();
         if (nothingWaiting()) {
@@ -86,6 +92,7 @@ final class LinePump implements Runnable, LineSplitter.Sink {
       failures.accept(new IOException("reading the trainer's " + name() + " failed", e));
     } finally {
       splitter.finish(this);
+      flushBatch();
       flushEcho();
       publish();
       closeLog();
@@ -95,14 +102,17 @@ final class LinePump implements Runnable, LineSplitter.Sink {
 
   @Override
   public void line(byte[] b, int off, int len, boolean cut) {
-    String text = new String(b, off, len, StandardCharsets.UTF_8); // malformed bytes become U+FFFD
-    try {
-      listener.onLine(stream, text);
-    } catch (RuntimeException e) {
-      if (!listenerFailed) { // report the first; a listener failing on every line costs no more
-        listenerFailed = true;
-        failures.accept(new IllegalStateException("the line listener threw on " + name()
-            + " line " + splitter.lines() + "; the pump keeps draining", e));
+    if (batch != null) {
+      batch.add(b, off, len, cut);
+      if (batch.full()) {
+        flushBatch();
+      }
+    } else {
+      String text = new String(b, off, len, StandardCharsets.UTF_8); // malformed: U+FFFD
+      try {
+        listener.onLine(stream, text);
+      } catch (RuntimeException e) {
+        listenerFailed(e);
       }
     }
     if (echoBuf != null) {
@@ -112,6 +122,27 @@ final class LinePump implements Runnable, LineSplitter.Sink {
       System.arraycopy(b, off, echoBuf, echoLen, len);
       echoLen += len;
       echoBuf[echoLen++] = '\n';
+    }
+  }
+
+  private void flushBatch() {
+    if (batch == null || batch.size() == 0) {
+      return;
+    }
+    try {
+      batchListener.onLines(stream, batch);
+    } catch (RuntimeException e) {
+      listenerFailed(e);
+    } finally {
+      batch.clear();
+    }
+  }
+
+  private void listenerFailed(RuntimeException e) {
+    if (!listenerFailed) { // report the first; a listener failing on every line costs no more
+      listenerFailed = true;
+      failures.accept(new IllegalStateException("the line listener threw on " + name()
+          + " line " + splitter.lines() + "; the pump keeps draining", e));
     }
   }
 

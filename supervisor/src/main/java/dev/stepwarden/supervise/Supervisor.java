@@ -9,6 +9,8 @@ import dev.stepwarden.metrics.MetricsSources;
 import dev.stepwarden.metrics.ReadPlan;
 import dev.stepwarden.metrics.Sample;
 import dev.stepwarden.process.LaunchSpec;
+import dev.stepwarden.process.LineBatch;
+import dev.stepwarden.process.LineBatchListener;
 import dev.stepwarden.process.StopResult;
 import dev.stepwarden.process.TrainerProcess;
 import dev.stepwarden.process.TrainerStream;
@@ -167,6 +169,10 @@ public final class Supervisor {
   private GuardEngine engine;
   private CheckpointLedger ledger;
   private BufferedWriter metricsOut;
+  private StringBuilder normalized = new StringBuilder(256);
+  private char[] normalizedChars = new char[256];
+  private String normalizedRate;
+  private long normalizedRateBits;
   private Path workdir;
 
   private volatile TrainerProcess trainer;
@@ -573,8 +579,17 @@ public final class Supervisor {
         .stopGrace(rules.run().stopGrace())
         .maxLineChars(rules.read().lineLimit())
         .build();
-    trainer = TrainerProcess.start(spec, (stream, line) -> onLine(gen,
-        stream == TrainerStream.STDERR, line));
+    trainer = TrainerProcess.start(spec, new LineBatchListener() {
+      @Override
+      public void onLines(TrainerStream stream, LineBatch lines) {
+        Supervisor.this.onLines(gen, stream == TrainerStream.STDERR, lines);
+      }
+
+      @Override
+      public void onLine(TrainerStream stream, String line) {
+        Supervisor.this.onLine(gen, stream == TrainerStream.STDERR, line);
+      }
+    });
     Map<String, Object> f = new LinkedHashMap<>();
     f.put("attempt", attempt);
     f.put("reason", reason);
@@ -619,10 +634,7 @@ public final class Supervisor {
         return;
       }
       if (stderr) {
-        if (recentStderr.size() == 20) {
-          recentStderr.removeFirst();
-        }
-        recentStderr.addLast(line.length() > 500 ? line.substring(0, 500) : line);
+        rememberStderr(line);
       }
       try {
         for (int i : stderr ? stderrSources : stdoutSources) {
@@ -635,9 +647,44 @@ public final class Supervisor {
     }
   }
 
+  /** The lines of one pump read under one lock acquisition, parsed from the pump's bytes. */
+  private void onLines(int gen, boolean stderr, LineBatch lines) {
+    synchronized (lock) {
+      int[] sources = stderr ? stderrSources : stdoutSources;
+      try {
+        for (int k = 0; k < lines.size(); k++) {
+          if (gen != generation || interrupted) {
+            return; // a stopped trainer's last words: its decisions are no longer ours to make
+          }
+          if (stderr) {
+            rememberStderr(lines.text(k));
+          }
+          for (int i : sources) {
+            long now = clock.millis();
+            handle(i, intake.accept(i, lines.bytes(), lines.offset(k), lines.length(k), now,
+                false), now);
+          }
+        }
+      } catch (IOException e) {
+        requests.add(new Request.End(null));
+        options.console().println("stepwarden: " + e.getMessage());
+      }
+    }
+  }
+
+  private void rememberStderr(String line) {
+    if (recentStderr.size() == 20) {
+      recentStderr.removeFirst();
+    }
+    recentStderr.addLast(line.length() > 500 ? line.substring(0, 500) : line);
+  }
+
   private void handle(int source, String line, boolean cut) throws IOException {
     long now = clock.millis();
-    MetricsIntake.Reading r = intake.accept(source, line, now, cut);
+    handle(source, intake.accept(source, line, now, cut), now);
+  }
+
+  private void handle(int source, MetricsIntake.Reading r, long now) throws IOException {
     if (r == null) {
       warnMissingKeys();
       return;
@@ -669,11 +716,14 @@ public final class Supervisor {
       lastValidation = v;
       scanCheckpoints(now); // a trainer typically saves right after it evaluates
     }
-    writeNormalized(s);
+    writeNormalized(source, s);
     warnMissingKeys();
     Optional<Decision> d = engine.onSample(s);
-    options.observer().onSample(s, engine.rate());
-    options.observer().onLines(intake.lines(), intake.metricLines(), intake.ignoredLines());
+    RunObserver o = options.observer();
+    if (o != RunObserver.NONE) {
+      o.onSample(s, engine.rate());
+      o.onLines(intake.lines(), intake.metricLines(), intake.ignoredLines());
+    }
     if (d.isPresent()) {
       options.observer().onDecision(d.get());
       act(d.get());
@@ -693,10 +743,10 @@ public final class Supervisor {
       return;
     }
     Optional<String> msg = intake.missingKeysWarning(MISSING_KEY_WARNING_AFTER);
+    missingWarned = true; // decided once: the sources give their warning at most once
     if (msg.isEmpty()) {
       return;
     }
-    missingWarned = true;
     Map<String, Object> f = new LinkedHashMap<>();
     f.put("after_lines", intake.lines());
     f.put("message", msg.get());
@@ -1090,24 +1140,55 @@ public final class Supervisor {
     return r;
   }
 
-  private void writeNormalized(Sample s) throws IOException {
-    StringBuilder b = new StringBuilder(96);
+  /**
+   * One line of metrics.jsonl. Numbers the trainer printed as valid JSON are copied as printed
+   * (they parse back to the same double); only the rest is formatted here. Reuses its buffers.
+   */
+  private void writeNormalized(int source, Sample s) throws IOException {
+    StringBuilder b = normalized;
+    b.setLength(0);
     b.append("{\"step\":").append(s.step());
     if (!Double.isNaN(s.epoch())) {
-      b.append(",\"epoch\":").append(s.epoch());
+      appendDouble(b.append(",\"epoch\":"), s.epoch());
     }
     b.append(",\"t\":").append(s.wallMillis());
-    b.append(",\"lr\":").append(engine.rate());
+    double rate = engine.rate();
+    if (Double.doubleToRawLongBits(rate) != normalizedRateBits || normalizedRate == null) {
+      normalizedRateBits = Double.doubleToRawLongBits(rate);
+      normalizedRate = Double.toString(rate);
+    }
+    b.append(",\"lr\":").append(normalizedRate);
     for (Map.Entry<String, Double> e : s.values().entrySet()) {
       b.append(",\"").append(e.getKey()).append("\":");
       double v = e.getValue();
       if (Double.isFinite(v)) {
-        b.append(v);
+        if (!intake.appendPrinted(source, e.getKey(), b)) {
+          appendDouble(b, v);
+        }
       } else {
         b.append('"').append(Double.isNaN(v) ? "nan" : v > 0 ? "inf" : "-inf").append('"');
       }
     }
-    metricsOut.append(b).append("}\n");
+    b.append("}\n");
+    int n = b.length();
+    if (normalizedChars.length < n) {
+      normalizedChars = new char[Math.max(n, normalizedChars.length * 2)];
+    }
+    b.getChars(0, n, normalizedChars, 0);
+    metricsOut.write(normalizedChars, 0, n);
+    if (b.capacity() > 4096) {
+      normalized = new StringBuilder(256); // do not keep a giant line's buffer
+    }
+  }
+
+  /** Double.toString's text, without its cost for whole numbers below 10^7 (epochs). */
+  private static void appendDouble(StringBuilder b, double v) {
+    long l = (long) v;
+    if (l == v && Math.abs(l) < 10_000_000L && (l != 0 || 1 / v > 0)) {
+      b.append(l).append(".0");
+    } else {
+      b.append(v);
+    }
   }
 
   private void flushMetrics() throws IOException {

@@ -1,7 +1,10 @@
 package dev.stepwarden.metrics;
 
 import dev.stepwarden.process.LaunchSpec;
+import dev.stepwarden.process.LineBatch;
+import dev.stepwarden.process.LineBatchListener;
 import dev.stepwarden.process.TrainerProcess;
+import dev.stepwarden.process.TrainerStream;
 import dev.stepwarden.rules.GuardEngine;
 import dev.stepwarden.rules.GuardFile;
 import dev.stepwarden.rules.GuardFiles;
@@ -49,9 +52,25 @@ public final class IntakeFlood {
         .stdoutLog(tmp.resolve("stdout.log")).stderrLog(tmp.resolve("stderr.log")).echo(false)
         .build();
     long t0 = System.nanoTime();
-    TrainerProcess p = TrainerProcess.start(spec, (stream, line) -> {
-      synchronized (lock) {
-        MetricsIntake.Reading r = sources.accept(0, line, 0L, false);
+    // One lock acquisition per pump read, lines parsed from the pump's bytes, as the supervisor.
+    TrainerProcess p = TrainerProcess.start(spec, new LineBatchListener() {
+      @Override
+      public void onLines(TrainerStream stream, LineBatch lines) {
+        synchronized (lock) {
+          for (int k = 0; k < lines.size(); k++) {
+            take(sources.accept(0, lines.bytes(), lines.offset(k), lines.length(k), 0L, false));
+          }
+        }
+      }
+
+      @Override
+      public void onLine(TrainerStream stream, String line) {
+        synchronized (lock) {
+          take(sources.accept(0, line, 0L, false));
+        }
+      }
+
+      private void take(MetricsIntake.Reading r) {
         if (r != null && r.sample() != null) {
           Sample s = r.sample();
           Double v = s.value("train");

@@ -75,4 +75,60 @@ class MetricsIntakeTest {
     assertThat(in.missingSeries()).isEmpty();
     assertThat(in.keysSeen()).containsExactly("loss", "step");
   }
+
+  @Test
+  void readingFromThePumpsBytesGivesTheSameSamplesAsReadingStrings() {
+    String[] lines = {
+        "{\"step\": 7, \"epoch\": 1, \"loss\": 0.30000000000000004, \"lr\": 1e-3}",
+        "{\"step\": 8, \"val\": {\"loss\": \"nan\"}, \"loss\": 2.5e-1}",
+        "{\"st\u00e9p\": 1, \"r\u00e9sum\u00e9\": 2, \"loss\": -0.0}",
+        "Traceback (most recent call last):",
+        "{\"r\\u00e9sum\\u00e9\": 3, \"\\ud83d\\ude00\": 4, \"loss\": 1}",
+        "{\"step\": 9, \"loss\": 1.7976931348623157e308, \"applied_revision\": 3}"};
+    MetricsIntake a = new MetricsIntake(json(ordered("train", "loss", "validation", "val.loss")));
+    MetricsIntake b = new MetricsIntake(json(ordered("train", "loss", "validation", "val.loss")));
+    for (String line : lines) {
+      MetricsIntake.Reading fromString = a.accept(line, 5L);
+      byte[] bytes = ("  " + line + "  ").getBytes(java.nio.charset.StandardCharsets.UTF_8);
+      MetricsIntake.Reading fromBytes = b.accept(bytes, 2, bytes.length - 4, 5L, false);
+      assertThat(fromBytes).as(line).isEqualTo(fromString);
+    }
+    assertThat(b.lines()).isEqualTo(a.lines());
+    assertThat(b.ignoredLines()).isEqualTo(a.ignoredLines()).isEqualTo(1);
+    assertThat(b.keysSeen()).isEqualTo(a.keysSeen())
+        .contains("r\u00e9sum\u00e9", "st\u00e9p", "\ud83d\ude00");
+  }
+
+  @Test
+  void theNumberTextAsPrintedIsOfferedOnlyWhenItIsValidJson() {
+    MetricsIntake in = new MetricsIntake(json(ordered("train", "loss", "validation", "acc")));
+    in.accept("{\"step\": 1, \"loss\": 0.2500, \"acc\": 1E+2}", 0L);
+    StringBuilder out = new StringBuilder();
+    assertThat(in.appendPrinted("train", out)).isTrue();
+    assertThat(in.appendPrinted("validation", out.append('|'))).isTrue();
+    assertThat(out).hasToString("0.2500|1E+2");
+    // RFC 8259 s. 6 has no leading '+', bare '.5', or NaN: the caller formats those itself
+    in.accept("{\"step\": 2, \"loss\": NaN, \"acc\": 5}", 0L);
+    assertThat(in.appendPrinted("train", new StringBuilder())).isFalse();
+    MetricsIntake pairs = new MetricsIntake(new ReadPlan(ReadPlan.Source.STDOUT, null,
+        ReadPlan.Format.PAIRS, null, "step", null, null, Map.of("train", "loss")));
+    pairs.accept("step=3 loss=.5", 0L);
+    assertThat(pairs.appendPrinted("train", new StringBuilder())).isFalse();
+    // a series the line did not carry
+    in.accept("{\"step\": 3, \"acc\": 5}", 0L);
+    assertThat(in.appendPrinted("train", new StringBuilder())).isFalse();
+  }
+
+  @Test
+  void jsonNumberGrammarFollowsRfc8259() {
+    // RFC 8259 s. 6: number = [ minus ] int [ frac ] [ exp ]; int = zero / ( digit1-9 *DIGIT )
+    for (String ok : new String[] {"0", "-0", "12", "0.5", "-1.25e-3", "1E+2", "6.02e23"}) {
+      byte[] b = ok.getBytes(java.nio.charset.StandardCharsets.US_ASCII);
+      assertThat(JsonLineParser.plainJson(b, 0, b.length)).as(ok).isTrue();
+    }
+    for (String bad : new String[] {"+1", ".5", "1.", "01", "1e", "-", "1e+", "--1", "0x10"}) {
+      byte[] b = bad.getBytes(java.nio.charset.StandardCharsets.US_ASCII);
+      assertThat(JsonLineParser.plainJson(b, 0, b.length)).as(bad).isFalse();
+    }
+  }
 }

@@ -75,6 +75,44 @@ class NumberExactnessTest {
     assertThat(bits(readBack(s))).as(s).isEqualTo(bits(nearest(s)));
   }
 
+  @Property(tries = 3000)
+  void eiselLemirePathAgreesWithTheJdkOnSeventeenDigitSignificands(
+      @ForAll("significands") long mantissa, @ForAll("wideExponents") int q) {
+    // Lemire 2021 (Software: Practice and Experience 51(8), s. 5) either returns the correctly
+    // rounded double or gives up; the JDK's Double.parseDouble is the reference.
+    double d = Decimals.eiselLemire(mantissa, q, false);
+    String text = mantissa + "e" + q;
+    if (!Double.isNaN(d)) {
+      assertThat(bits(d)).as(text).isEqualTo(bits(Double.parseDouble(text)));
+    }
+    assertThat(bits(readBack(text))).as(text).isEqualTo(bits(nearest(text)));
+  }
+
+  @Test
+  void halfwayCasesBetweenTwoDoublesRoundToEven() {
+    // 2^53 + 1 is exactly halfway between 2^53 and 2^53 + 2: ties go to the even significand
+    // (IEEE 754-2008, s. 4.3.1, roundTiesToEven); so is 2^53 + 3, which rounds up.
+    assertThat(readBack("9007199254740993")).isEqualTo(9007199254740992.0);
+    assertThat(readBack("9007199254740995")).isEqualTo(9007199254740996.0);
+    assertThat(readBack("9007199254740993e10")).isEqualTo(Double.parseDouble("9007199254740993e10"));
+    // the largest and smallest normal doubles in their 17-digit spelling
+    assertThat(readBack("1.7976931348623157e308")).isEqualTo(Double.MAX_VALUE);
+    assertThat(readBack("2.2250738585072014e-308")).isEqualTo(Double.MIN_NORMAL);
+  }
+
+  @Provide
+  Arbitrary<Long> significands() {
+    return Arbitraries.frequencyOf(
+        net.jqwik.api.Tuple.of(3, Arbitraries.longs().between(10_000_000_000_000_000L,
+            99_999_999_999_999_999L)),
+        net.jqwik.api.Tuple.of(1, Arbitraries.longs().between(1, 999_999_999_999_999_999L)));
+  }
+
+  @Provide
+  Arbitrary<Integer> wideExponents() {
+    return Arbitraries.integers().between(-360, 320);
+  }
+
   /** The nearest double of a decimal text; BigDecimal has no negative zero, so keep the sign. */
   private static double nearest(String text) {
     double d = new BigDecimal(text).doubleValue();
