@@ -67,12 +67,20 @@ public final class AuditLog implements Closeable {
     record.putAll(fields);
     byte[] line = (JSON.writeValueAsString(record) + "\n").getBytes(StandardCharsets.UTF_8);
     ByteBuffer buf = ByteBuffer.wrap(line);
+    long before = channel.size();
     try {
       while (buf.hasRemaining()) {
         channel.write(buf);
       }
       channel.force(false);
     } catch (IOException e) {
+      // A partial write (ENOSPC half-way) would leave a torn record: take it back.
+      try {
+        channel.truncate(before);
+        channel.force(false);
+      } catch (IOException ignored) {
+        // the reader still reports a torn last line
+      }
       throw new IOException("cannot write the audit log " + path + ": " + e.getMessage()
           + " (is the disk full?)", e);
     }

@@ -48,8 +48,10 @@ import java.util.stream.Stream;
  *       recognised by its unchanged file identity: that entry is marked damaged and the vault
  *       switches to copies.
  * </ul>
- * The ledger reads the user's files but never deletes or modifies them. Not thread-safe: the
- * supervisor calls it under its lock.
+ * The ledger reads the user's files but never deletes or modifies them. Its methods are
+ * synchronized: the supervising thread scans (and hashes, which takes seconds for a large file)
+ * without holding the supervisor's lock, so the pumps keep draining the trainer's pipes, while a
+ * pump thread may read the entries for the state file.
  */
 public final class CheckpointLedger {
   private static final Pattern LAST_NUMBER = Pattern.compile("(\\d+)(?!.*\\d)");
@@ -168,21 +170,21 @@ public final class CheckpointLedger {
     this.settleMillis = settleMillis;
   }
 
-  public String glob() {
+  public synchronized String glob() {
     return glob;
   }
 
   /** The folder the scan starts in (the glob's fixed leading folders). */
-  public Path scanRoot() {
+  public synchronized Path scanRoot() {
     return base;
   }
 
-  public Optional<CheckpointVault> vault() {
+  public synchronized Optional<CheckpointVault> vault() {
     return Optional.ofNullable(vault);
   }
 
   /** Ignores every matching file present now until it changes (an earlier run's leftovers). */
-  public void baseline() throws IOException {
+  public synchronized void baseline() throws IOException {
     for (Path p : find()) {
       long[] stamp = stamp(p);
       if (stamp != null) {
@@ -201,8 +203,8 @@ public final class CheckpointLedger {
    * @param forceSettle take files that appeared but have not settled yet: only when the trainer
    *     has exited on its own, so nothing can still be writing
    */
-  public List<Entry> scan(long step, double train, double validation, boolean healthy,
-      long wallMillis, boolean forceSettle) throws IOException {
+  public synchronized List<Entry> scan(long step, double train, double validation,
+      boolean healthy, long wallMillis, boolean forceSettle) throws IOException {
     List<Entry> fresh = new ArrayList<>();
     for (Path p : find()) {
       long[] now = stamp(p);
@@ -248,7 +250,8 @@ public final class CheckpointLedger {
   }
 
   /** {@link #scan(long, double, double, boolean, long, boolean)} without forcing. */
-  public List<Entry> scan(long step, double train, double validation, boolean healthy,
+  public synchronized List<Entry> scan(long step, double train, double validation,
+      boolean healthy,
       long wallMillis) throws IOException {
     return scan(step, train, validation, healthy, wallMillis, false);
   }
@@ -361,25 +364,25 @@ public final class CheckpointLedger {
   }
 
   /** Notices gathered since the last call (vault warnings), for the audit log. */
-  public List<Notice> drainNotices() {
+  public synchronized List<Notice> drainNotices() {
     List<Notice> out = List.copyOf(notices);
     notices.clear();
     return out;
   }
 
-  public List<Entry> entries() {
+  public synchronized List<Entry> entries() {
     return List.copyOf(entries);
   }
 
   /** The healthy usable entry with the lowest validation value (then the latest), if any. */
-  public Optional<Entry> best() {
+  public synchronized Optional<Entry> best() {
     return entries.stream().filter(this::usable).filter(e -> Double.isFinite(e.validation()))
         .min(Comparator.comparingDouble(Entry::validation)
             .thenComparing(Comparator.comparingLong(Entry::step).reversed()));
   }
 
   /** The newest healthy usable entry written at or before {@code step}. */
-  public Optional<Entry> latestHealthyAtOrBefore(long step) {
+  public synchronized Optional<Entry> latestHealthyAtOrBefore(long step) {
     return entries.stream().filter(this::usable).filter(e -> e.step() <= step)
         .max(Comparator.comparingLong(Entry::step).thenComparingLong(Entry::wallMillis));
   }
@@ -394,7 +397,7 @@ public final class CheckpointLedger {
    *
    * @return true when the file is intact
    */
-  public boolean verify(Entry e) {
+  public synchronized boolean verify(Entry e) {
     boolean intact;
     try {
       intact = Files.isRegularFile(e.usable()) && sha256(e.usable()).equals(e.sha256());
@@ -414,7 +417,7 @@ public final class CheckpointLedger {
    * Marks entries written after {@code step} as abandoned: a rewind to {@code step} left that
    * branch of the run behind, so they are no rewind targets any more. Returns how many.
    */
-  public int abandonAfter(long step) {
+  public synchronized int abandonAfter(long step) {
     int n = 0;
     for (int i = 0; i < entries.size(); i++) {
       Entry e = entries.get(i);
@@ -436,7 +439,7 @@ public final class CheckpointLedger {
   }
 
   /** The vault copy a running trainer was started from: never pruned while it is in use. */
-  public void inUse(Path vaultCopy) {
+  public synchronized void inUse(Path vaultCopy) {
     inUse = vaultCopy;
   }
 
@@ -446,7 +449,7 @@ public final class CheckpointLedger {
    *
    * @return the vault files removed
    */
-  public List<Path> prune() throws IOException {
+  public synchronized List<Path> prune() throws IOException {
     List<Path> removed = new ArrayList<>();
     if (vault == null) {
       return removed;
@@ -472,7 +475,7 @@ public final class CheckpointLedger {
   }
 
   /** What a resumed run needs: the settled stamps of watched files. */
-  public List<Seen> seen() {
+  public synchronized List<Seen> seen() {
     List<Seen> out = new ArrayList<>();
     settled.forEach((p, s) -> out.add(new Seen(p, s[0], s[1])));
     out.sort(Comparator.comparing(s -> s.path().toString()));
@@ -483,7 +486,7 @@ public final class CheckpointLedger {
    * Restores entries and stamps saved by an earlier supervisor of this run, then baselines
    * whatever changed while no supervisor watched (its step is unknown).
    */
-  public void restore(List<Entry> saved, List<Seen> stamps) throws IOException {
+  public synchronized void restore(List<Entry> saved, List<Seen> stamps) throws IOException {
     entries.clear();
     entries.addAll(saved);
     settled.clear();

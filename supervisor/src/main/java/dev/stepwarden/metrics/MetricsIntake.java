@@ -158,8 +158,31 @@ public final class MetricsIntake {
   public Reading accept(String line, long wallMillis, boolean cut) {
     if (cut) {
       oversized++;
+      // The last token of a cut line may be a number cut short ("0.31" read as "0.3"): drop it.
+      line = line.substring(0, wholeTokens(line));
     }
     return accept(line, wallMillis);
+  }
+
+  /** Length of {@code s} up to its last separator, so a token cut off at the end is left out. */
+  static int wholeTokens(CharSequence s) {
+    for (int i = s.length() - 1; i >= 0; i--) {
+      char c = s.charAt(i);
+      if (c == ' ' || c == '\t' || c == ',' || c == '|' || c == ';' || c == '}') {
+        return i + 1;
+      }
+    }
+    return 0;
+  }
+
+  private static int wholeTokens(byte[] b, int off, int len) {
+    for (int i = off + len - 1; i >= off; i--) {
+      byte c = b[i];
+      if (c == ' ' || c == '\t' || c == ',' || c == '|' || c == ';' || c == '}') {
+        return i + 1 - off;
+      }
+    }
+    return 0;
   }
 
   public Reading accept(String line, long wallMillis) {
@@ -178,6 +201,7 @@ public final class MetricsIntake {
   public Reading accept(byte[] b, int off, int len, long wallMillis, boolean cut) {
     if (cut) {
       oversized++;
+      len = wholeTokens(b, off, len); // as for strings: no number cut short
     }
     lines++;
     if (!parser.parse(b, off, len, sink)) {

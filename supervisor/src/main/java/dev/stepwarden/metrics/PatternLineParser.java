@@ -4,8 +4,14 @@ import java.util.List;
 import java.util.regex.Matcher;
 import java.util.regex.Pattern;
 
-/** The user's regular expression; each named group that holds a number becomes a key. */
+/**
+ * The user's regular expression; each named group that holds a number becomes a key. Lines
+ * longer than {@link #MAX_CHARS} are passed over: a pattern that backtracks badly on a long line
+ * would otherwise stall the pump thread (metric lines are short; such lines are counted ignored).
+ */
 final class PatternLineParser implements LineParser {
+  static final int MAX_CHARS = 64 * 1024;
+
   private final Pattern pattern;
   private final List<String> groups;
 
@@ -16,6 +22,9 @@ final class PatternLineParser implements LineParser {
 
   @Override
   public boolean parse(String line, Fields out) {
+    if (line.length() > MAX_CHARS) {
+      return false;
+    }
     Matcher m = pattern.matcher(line);
     if (!m.find()) {
       return false;

@@ -77,6 +77,7 @@ public final class Supervisor {
   private static final Pattern OOM = Pattern.compile(
       "(?i)(out of memory|OutOfMemoryError|CUDA error: out of memory|MemoryError|Killed)");
   private static final long TICK_MILLIS = 200;
+  private static final Pattern PLACEHOLDER = Pattern.compile("\\{([a-z_]+)}");
   private static final Duration FOLLOW_INTERVAL = Duration.ofMillis(100);
   private static final long SETTLE_MILLIS = 500;
   private static final long STATE_EVERY_MILLIS = 5_000;
@@ -150,7 +151,12 @@ public final class Supervisor {
         boolean fromCheckpoint) implements Request {}
 
     record Preempt(String why) implements Request {}
+
+    /** A validation value arrived: the trainer typically saves right after it evaluates. */
+    record Scan() implements Request {}
   }
+
+  private static final Request SCAN = new Request.Scan();
 
   private GuardFile rules;
   private final Options options;
@@ -249,9 +255,34 @@ public final class Supervisor {
     try {
       launch(resumed == null ? "start" : "resume", 0);
       return loop();
+    } catch (IOException e) {
+      // The run directory failed us (a full disk, most often): without an audit log the run
+      // cannot be supervised, so stop the trainer's tree rather than leave it unwatched.
+      failSafe(e);
+      throw new IOException("cannot write the run directory " + dir.root() + " ("
+          + e.getMessage() + "); the trainer was stopped and its checkpoints are untouched;"
+          + " free some space or choose another --run-dir", e);
     } finally {
       finished = true;
       closeQuietly();
+    }
+  }
+
+  private void failSafe(IOException cause) {
+    TrainerProcess t = trainer;
+    StopResult stop = t == null ? null : t.stop();
+    try {
+      synchronized (lock) {
+        Map<String, Object> f = new LinkedHashMap<>();
+        f.put("error", cause.getMessage());
+        f.put("trainer_stopped", stop != null && stop.wasAlive());
+        f.put("note", "the supervisor cannot write its run directory; the trainer was stopped"
+            + " safely and its checkpoints are untouched");
+        audit.append("supervisor-failure", f);
+      }
+    } catch (IOException again) {
+      options.console().println("stepwarden: the audit log cannot record the failure either: "
+          + again.getMessage());
     }
   }
 
@@ -606,11 +637,18 @@ public final class Supervisor {
 
   /** Fills {@code {name}} placeholders; the values are numbers and paths we produced ourselves. */
   static String fill(String word, Map<String, String> values) {
-    String out = word;
-    for (String p : GuardFiles.PLACEHOLDERS) {
-      out = out.replace("{" + p + "}", values.getOrDefault(p, ""));
+    // One pass over the template only: a value (a checkpoint path, say) that itself contains
+    // "{attempt}" or shell characters is passed on verbatim, never expanded again.
+    Matcher m = PLACEHOLDER.matcher(word);
+    StringBuilder out = new StringBuilder();
+    while (m.find()) {
+      String name = m.group(1);
+      String value = GuardFiles.PLACEHOLDERS.contains(name) ? values.getOrDefault(name, "")
+          : m.group();
+      m.appendReplacement(out, Matcher.quoteReplacement(value));
     }
-    return out;
+    m.appendTail(out);
+    return out.toString();
   }
 
   static String formatRate(double rate) {
@@ -662,7 +700,7 @@ public final class Supervisor {
           for (int i : sources) {
             long now = clock.millis();
             handle(i, intake.accept(i, lines.bytes(), lines.offset(k), lines.length(k), now,
-                false), now);
+                lines.cut(k)), now);
           }
         }
       } catch (IOException e) {
@@ -714,7 +752,9 @@ public final class Supervisor {
     Double v = s.value("validation");
     if (v != null) {
       lastValidation = v;
-      scanCheckpoints(now); // a trainer typically saves right after it evaluates
+      // Scanning hashes new checkpoints, which can take seconds for big ones: the supervising
+      // thread does it, so this pump thread goes on draining the trainer's output.
+      requests.offer(SCAN);
     }
     writeNormalized(source, s);
     warnMissingKeys();
@@ -845,6 +885,10 @@ public final class Supervisor {
       if (req instanceof Request.Preempt p) {
         return preempted(p.why());
       }
+      if (req instanceof Request.Scan) {
+        scanUnlocked(clock.millis());
+        continue;
+      }
       TrainerProcess t = trainer;
       OptionalInt exit = t.waitFor(Duration.ZERO);
       if (exit.isPresent()) {
@@ -878,8 +922,37 @@ public final class Supervisor {
     if (ledger == null) {
       return 0;
     }
-    List<CheckpointLedger.Entry> fresh = ledger.scan(currentStep, lastTrain, lastValidation,
-        healthyNow(), now, forceSettle);
+    return recordScan(ledger.scan(currentStep, lastTrain, lastValidation, healthyNow(), now,
+        forceSettle));
+  }
+
+  /**
+   * Scans without holding the lock while files are hashed, so the pumps keep draining the
+   * trainer's pipes; the run's state is read before and the results recorded after, under it.
+   */
+  private void scanUnlocked(long now) throws IOException {
+    if (ledger == null) {
+      return;
+    }
+    long step;
+    double train;
+    double validation;
+    boolean healthy;
+    synchronized (lock) {
+      step = currentStep;
+      train = lastTrain;
+      validation = lastValidation;
+      healthy = healthyNow();
+    }
+    List<CheckpointLedger.Entry> fresh = ledger.scan(step, train, validation, healthy, now,
+        false);
+    synchronized (lock) {
+      recordScan(fresh);
+    }
+  }
+
+  /** Audits what a scan found and keeps the vault trim; under the lock. */
+  private int recordScan(List<CheckpointLedger.Entry> fresh) throws IOException {
     for (CheckpointLedger.Notice n : ledger.drainNotices()) {
       audit.append(n.type(), n.fields());
       say(String.valueOf(n.fields().get("message")));
@@ -914,9 +987,9 @@ public final class Supervisor {
 
   private void periodic() throws IOException {
     long now = clock.millis();
+    scanUnlocked(now);
     synchronized (lock) {
       flushMetrics();
-      scanCheckpoints(now);
       if (currentStep != stateSavedStep && now - stateSavedMillis >= STATE_EVERY_MILLIS) {
         saveState(false, null);
       }
