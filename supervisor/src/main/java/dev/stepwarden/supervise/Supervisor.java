@@ -1293,10 +1293,4 @@ public final class Supervisor {
       options.console().println("stepwarden: " + e.getMessage());
     }
   }
-
-  /** Matches the OOM hint, for tests. */
-  static boolean looksLikeOutOfMemory(String line) {
-    Matcher m = OOM.matcher(line);
-    return m.find();
-  }
 }

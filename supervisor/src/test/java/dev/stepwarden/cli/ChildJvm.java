@@ -1,6 +1,5 @@
 package dev.stepwarden.cli;
 
-import java.io.IOException;
 import java.nio.file.Path;
 import java.util.ArrayList;
 import java.util.List;
@@ -40,9 +39,5 @@ final class ChildJvm {
     while (alive(pid) && System.nanoTime() < end) {
       Thread.sleep(50);
     }
-  }
-
-  static void startOrFail(ProcessBuilder pb) throws IOException {
-    pb.start();
   }
 }
