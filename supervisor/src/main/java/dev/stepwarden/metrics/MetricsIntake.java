@@ -233,6 +233,35 @@ public final class MetricsIntake {
     return false;
   }
 
+  /**
+   * The length of {@code series}'s number as printed in the line just accepted, when that text
+   * is a valid JSON number; -1 otherwise. With {@link #copyPrinted} the byte-level form of
+   * {@link #appendPrinted}.
+   */
+  public int printedLength(String series) {
+    int slot = printedSlot(series);
+    return slot < 0 ? -1 : textTo[slot] - textFrom[slot];
+  }
+
+  /** Copies the text {@link #printedLength} measured into {@code out} from {@code at}. */
+  public void copyPrinted(String series, byte[] out, int at) {
+    int slot = printedSlot(series);
+    if (slot < 0) {
+      throw new IllegalStateException("no printed number for series '" + series + "'");
+    }
+    System.arraycopy(text, textFrom[slot], out, at, textTo[slot] - textFrom[slot]);
+  }
+
+  private int printedSlot(String series) {
+    for (int i = 0; i < seriesNames.length; i++) {
+      if (seriesNames[i].equals(series)) {
+        int slot = FIRST_SERIES + i;
+        return !has(slot) || textFrom[slot] < 0 || text == null ? -1 : slot;
+      }
+    }
+    return -1;
+  }
+
   private Reading read(long wallMillis) {
     SeriesValues sv = null;
     int count = 0;

@@ -76,6 +76,16 @@ public final class MetricsSources implements AutoCloseable {
     return intakes.get(source).appendPrinted(series, out);
   }
 
+  /** See {@link MetricsIntake#printedLength}. */
+  public int printedLength(int source, String series) {
+    return intakes.get(source).printedLength(series);
+  }
+
+  /** See {@link MetricsIntake#copyPrinted}. */
+  public void copyPrinted(int source, String series, byte[] out, int at) {
+    intakes.get(source).copyPrinted(series, out, at);
+  }
+
   /**
    * Starts a {@link FileFollower} for every file source (relative paths against {@code workdir});
    * each delivers to {@code sink} on its own thread.

@@ -1,7 +1,5 @@
 package dev.stepwarden.metrics;
 
-import java.util.Collections;
-import java.util.LinkedHashMap;
 import java.util.Map;
 import java.util.Objects;
 
@@ -10,7 +8,7 @@ import java.util.Objects;
  * {@code train}, {@code validation}) that one trainer line carried, on the step axis.
  *
  * <p>Values may be non-finite (NaN, infinities): a trainer printing {@code nan} is evidence, not a
- * parse error. Immutable; the map keeps insertion order so replay and audit output are stable.
+ * parse error. Immutable; the map keeps insertion order (and indexes it: {@link #name(int)}) so replay and audit output are stable.
  *
  * @param step the step counter (as reported, or inferred when absent)
  * @param epoch the epoch, or NaN when the trainer did not report one
@@ -24,8 +22,23 @@ public record Sample(long step, double epoch, long wallMillis, Map<String, Doubl
       throw new IllegalArgumentException("a sample needs at least one series value");
     }
     if (!(values instanceof SeriesValues)) { // the intake's own map is immutable already
-      values = Collections.unmodifiableMap(new LinkedHashMap<>(values));
+      values = SeriesValues.copyOf(values);
     }
+  }
+
+  /** How many series this sample carries. */
+  public int size() {
+    return values.size();
+  }
+
+  /** The name of series {@code i} (0 to {@link #size()} - 1), in the order the line gave them. */
+  public String name(int i) {
+    return ((SeriesValues) values).name(i);
+  }
+
+  /** The value of series {@code i}, unboxed; for loops that visit every series of a sample. */
+  public double valueAt(int i) {
+    return ((SeriesValues) values).valueAt(i);
   }
 
   /** The value of {@code series} in this sample, or {@code null} when the line did not carry it. */

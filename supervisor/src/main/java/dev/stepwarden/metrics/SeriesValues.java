@@ -26,6 +26,26 @@ final class SeriesValues extends AbstractMap<String, Double> {
     this.values = values;
   }
 
+  /** An immutable copy of {@code map} in its iteration order. */
+  static SeriesValues copyOf(Map<String, Double> map) {
+    String[] n = new String[map.size()];
+    Double[] v = new Double[n.length];
+    int i = 0;
+    for (Map.Entry<String, Double> e : map.entrySet()) {
+      n[i] = java.util.Objects.requireNonNull(e.getKey(), "series name");
+      v[i++] = java.util.Objects.requireNonNull(e.getValue(), "series value");
+    }
+    return new SeriesValues(n, v);
+  }
+
+  String name(int i) {
+    return names[i];
+  }
+
+  double valueAt(int i) {
+    return values[i];
+  }
+
   @Override
   public int size() {
     return names.length;
