@@ -23,6 +23,9 @@ JAR=target/stepwarden.jar
 # The supervisor's JVM as the README alias launches it: a small serial-collected heap (the
 # intake allocates little and keeps bounded windows), so resident memory stays flat.
 JVM=${STEPWARDEN_JVM_OPTS:--XX:+UseSerialGC -Xms32m -Xmx256m}
+# ... with the class-data archive the build records next to the jar, as the README alias has it
+# (the in-JVM harness runs from classes, so it does not get the archive).
+RUNJVM="$JVM -XX:SharedArchiveFile=$MOD/target/stepwarden.jsa -Xlog:cds=off -Xlog:cds+dynamic=off"
 
 python3 - "$N" "$F" <<'PY'
 import json, math, random, sys
@@ -56,7 +59,7 @@ guards:
     when: { rises: { series: train, above_best: 3.0, samples: 3 } }
     do: { scale: 0.5 }
 YAML
-/usr/bin/time -o "$W/time.txt" -f "%e %M" java $JVM -jar "$JAR" run --quiet --rules "$W/flood.yaml" \
+/usr/bin/time -o "$W/time.txt" -f "%e %M" java $RUNJVM -jar "$JAR" run --quiet --rules "$W/flood.yaml" \
   --run-dir "$W/runs" -- cat "$F" >/dev/null 2>"$W/run.err" || true
 OUT=$(tail -1 "$W/time.txt")
 T_RUN=${OUT% *}; RSS_KB=${OUT#* }
@@ -75,7 +78,7 @@ print(f"trainer_seconds={time.perf_counter() - t:.3f}", file=sys.stderr)
 PY
 M=$((N / 5))
 A=$(python3 "$W/trainer.py" "$M" 2>&1 >/dev/null | sed 's/.*=//')
-java $JVM -jar "$JAR" run --quiet --rules "$W/flood.yaml" --run-dir "$W/runs2" -- python3 \
+java $RUNJVM -jar "$JAR" run --quiet --rules "$W/flood.yaml" --run-dir "$W/runs2" -- python3 \
   "$W/trainer.py" "$M" >/dev/null 2>"$W/run2.err" || true
 # --run-dir names the run directory itself; the trainer's stderr log is in it
 B=$(cat "$W"/runs2/trainer.stderr.log "$W"/runs2/*/trainer.stderr.log 2>/dev/null \
@@ -84,7 +87,7 @@ rm -rf "$W/runs2"
 echo "trainer flooding $M lines: to /dev/null ${A}s, under stepwarden ${B:-?}s"
 [ -n "${B:-}" ] && python3 -c "import sys; a,b=map(float,sys.argv[1:]); print(f'trainer slowdown: {b/a-1:+.1%}')" "$A" "$B"
 
-/usr/bin/time -o "$W/time3.txt" -f "%e %M" java $JVM -jar "$JAR" run --quiet --rules "$W/flood.yaml" \
+/usr/bin/time -o "$W/time3.txt" -f "%e %M" java $RUNJVM -jar "$JAR" run --quiet --rules "$W/flood.yaml" \
   --run-dir "$W/runs3" -- cat "$F" "$F" >/dev/null 2>"$W/run3.err" || true
 OUT=$(tail -1 "$W/time3.txt")
 echo "stepwarden run -- cat FILE FILE ($((2 * N)) samples): ${OUT% *}s  peak RSS $((${OUT#* } / 1024)) MB"

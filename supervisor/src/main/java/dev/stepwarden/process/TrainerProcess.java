@@ -60,7 +60,8 @@ import java.util.concurrent.atomic.AtomicReference;
  *
  * <p><b>Pumps.</b> stdout and stderr each have a pump thread reading 64 KiB chunks: raw bytes go
  * to the log through a buffer that is flushed whenever the pipe is empty (so a tailer sees complete
- * output, without a syscall per line); complete lines go to the {@link LineListener} and the echo.
+ * output, without a syscall per line); complete lines go to the echo and, through a bounded queue
+ * and a second thread per stream, to the {@link LineListener}.
  * The pumps never stop draining, so a trainer never blocks on a full pipe because of a log error or
  * a listener exception. Line rules are in {@link LaunchSpec#maxLineChars()} and the listener docs:
  * split on {@code '\n'}, drop a {@code '\r'} before it, keep what follows the last other
@@ -218,6 +219,16 @@ public final class TrainerProcess implements AutoCloseable {
     out.await();
     err.await();
     return code;
+  }
+
+  /**
+   * Runs {@code action} once the trainer has exited and both pumps have drained, that is when
+   * {@link #waitFor(Duration)} would no longer wait (on a JDK thread: keep it short). Lets a
+   * caller that polls wake at once instead of at its next tick.
+   */
+  public void whenDrained(Runnable action) {
+    CompletableFuture.allOf(process.onExit(), out.finished(), err.finished())
+        .thenRun(action);
   }
 
   /** Like {@link #waitFor()} but gives up after {@code timeout}: empty when still running. */

@@ -18,7 +18,6 @@ import dev.stepwarden.rules.Decision;
 import dev.stepwarden.rules.GuardEngine;
 import dev.stepwarden.rules.GuardFile;
 import dev.stepwarden.rules.GuardFiles;
-import java.io.BufferedWriter;
 import java.io.IOException;
 import java.io.PrintStream;
 import java.nio.charset.StandardCharsets;
@@ -154,9 +153,13 @@ public final class Supervisor {
 
     /** A validation value arrived: the trainer typically saves right after it evaluates. */
     record Scan() implements Request {}
+
+    /** The trainer exited and its output drained: look now rather than at the next tick. */
+    record Wake() implements Request {}
   }
 
   private static final Request SCAN = new Request.Scan();
+  private static final Request WAKE = new Request.Wake();
 
   private GuardFile rules;
   private final Options options;
@@ -174,11 +177,7 @@ public final class Supervisor {
   private int[] stderrSources = new int[0];
   private GuardEngine engine;
   private CheckpointLedger ledger;
-  private BufferedWriter metricsOut;
-  private StringBuilder normalized = new StringBuilder(256);
-  private char[] normalizedChars = new char[256];
-  private String normalizedRate;
-  private long normalizedRateBits;
+  private NormalizedWriter metricsOut;
   private Path workdir;
 
   private volatile TrainerProcess trainer;
@@ -342,8 +341,7 @@ public final class Supervisor {
     if (ledger != null) {
       ledger.baseline(); // an earlier run's files: their step is unknown
     }
-    metricsOut = Files.newBufferedWriter(dir.privateFile(RunDirectory.METRICS),
-        StandardCharsets.UTF_8, StandardOpenOption.APPEND);
+    metricsOut = NormalizedWriter.append(dir.privateFile(RunDirectory.METRICS));
     control.publish(engine.rate(), "(start)", 0);
     Map<String, Object> f = new LinkedHashMap<>();
     f.put("name", rules.run().name());
@@ -462,8 +460,7 @@ public final class Supervisor {
       st.path("ledger").path("seen").forEach(n -> seen.add(StateFile.seen(n)));
       ledger.restore(entries, seen);
     }
-    metricsOut = Files.newBufferedWriter(dir.privateFile(RunDirectory.METRICS),
-        StandardCharsets.UTF_8, StandardOpenOption.APPEND);
+    metricsOut = NormalizedWriter.append(dir.privateFile(RunDirectory.METRICS));
     Optional<CheckpointLedger.Entry> target = chooseTarget(Long.MAX_VALUE);
     resumeFrom = target.map(e -> e.usable().toString()).orElse("");
     ledgerInUse(target);
@@ -621,6 +618,7 @@ public final class Supervisor {
         Supervisor.this.onLine(gen, stream == TrainerStream.STDERR, line);
       }
     });
+    trainer.whenDrained(() -> requests.offer(WAKE));
     Map<String, Object> f = new LinkedHashMap<>();
     f.put("attempt", attempt);
     f.put("reason", reason);
@@ -1218,50 +1216,7 @@ public final class Supervisor {
    * (they parse back to the same double); only the rest is formatted here. Reuses its buffers.
    */
   private void writeNormalized(int source, Sample s) throws IOException {
-    StringBuilder b = normalized;
-    b.setLength(0);
-    b.append("{\"step\":").append(s.step());
-    if (!Double.isNaN(s.epoch())) {
-      appendDouble(b.append(",\"epoch\":"), s.epoch());
-    }
-    b.append(",\"t\":").append(s.wallMillis());
-    double rate = engine.rate();
-    if (Double.doubleToRawLongBits(rate) != normalizedRateBits || normalizedRate == null) {
-      normalizedRateBits = Double.doubleToRawLongBits(rate);
-      normalizedRate = Double.toString(rate);
-    }
-    b.append(",\"lr\":").append(normalizedRate);
-    for (Map.Entry<String, Double> e : s.values().entrySet()) {
-      b.append(",\"").append(e.getKey()).append("\":");
-      double v = e.getValue();
-      if (Double.isFinite(v)) {
-        if (!intake.appendPrinted(source, e.getKey(), b)) {
-          appendDouble(b, v);
-        }
-      } else {
-        b.append('"').append(Double.isNaN(v) ? "nan" : v > 0 ? "inf" : "-inf").append('"');
-      }
-    }
-    b.append("}\n");
-    int n = b.length();
-    if (normalizedChars.length < n) {
-      normalizedChars = new char[Math.max(n, normalizedChars.length * 2)];
-    }
-    b.getChars(0, n, normalizedChars, 0);
-    metricsOut.write(normalizedChars, 0, n);
-    if (b.capacity() > 4096) {
-      normalized = new StringBuilder(256); // do not keep a giant line's buffer
-    }
-  }
-
-  /** Double.toString's text, without its cost for whole numbers below 10^7 (epochs). */
-  private static void appendDouble(StringBuilder b, double v) {
-    long l = (long) v;
-    if (l == v && Math.abs(l) < 10_000_000L && (l != 0 || 1 / v > 0)) {
-      b.append(l).append(".0");
-    } else {
-      b.append(v);
-    }
+    metricsOut.write(s, engine.rate(), intake, source);
   }
 
   private void flushMetrics() throws IOException {
