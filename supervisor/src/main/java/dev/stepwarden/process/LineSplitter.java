@@ -1,5 +1,9 @@
 package dev.stepwarden.process;
 
+import java.lang.invoke.MethodHandles;
+import java.lang.invoke.VarHandle;
+import java.nio.ByteOrder;
+
 /**
  * Cuts a byte stream into lines, chunk by chunk, with bounded memory.
  *
@@ -60,16 +64,12 @@ final class LineSplitter {
     }
     int segStart = i;
     while (i < end) {
-      // Tight scan: no per-byte calls, two compares per byte.
-      byte c = b[i];
-      while (c != '\n' && c != '\r') {
-        if (++i == end) {
-          append(b, segStart, end - segStart);
-          return;
-        }
-        c = b[i];
+      i = nextBreak(b, i, end);
+      if (i == end) {
+        append(b, segStart, end - segStart);
+        return;
       }
-      if (c == '\n') {
+      if (b[i] == '\n') {
         emit(b, segStart, i - segStart, sink);
         segStart = ++i;
       } else if (i + 1 < end) {
@@ -87,6 +87,40 @@ final class LineSplitter {
         return;
       }
     }
+  }
+
+  private static final VarHandle LONGS =
+      MethodHandles.byteArrayViewVarHandle(long[].class, ByteOrder.LITTLE_ENDIAN);
+  private static final long ONES = 0x0101010101010101L;
+  private static final long HIGHS = 0x8080808080808080L;
+  private static final long NLS = 0x0A0A0A0A0A0A0A0AL;
+  private static final long CRS = 0x0D0D0D0D0D0D0D0DL;
+
+  /**
+   * The index of the first {@code '\n'} or {@code '\r'} in {@code b[i, end)}, or {@code end}.
+   * Eight bytes per step: a byte equal to the wanted one is a zero byte of {@code word ^ wanted},
+   * and {@code (x - 0x01..) & ~x & 0x80..} flags zero bytes; flags above a true zero byte can be
+   * false (a borrow), but the lowest one never is, and on a little-endian read the lowest flag
+   * is the first byte in the array (Anderson, "Bit Twiddling Hacks", "Determine if a word has a
+   * zero byte").
+   */
+  static int nextBreak(byte[] b, int i, int end) {
+    for (; i + 8 <= end; i += 8) {
+      long w = (long) LONGS.get(b, i);
+      long x = w ^ NLS;
+      long y = w ^ CRS;
+      long t = (((x - ONES) & ~x) | ((y - ONES) & ~y)) & HIGHS;
+      if (t != 0) {
+        return i + (Long.numberOfTrailingZeros(t) >>> 3);
+      }
+    }
+    for (; i < end; i++) {
+      byte c = b[i];
+      if (c == '\n' || c == '\r') {
+        return i;
+      }
+    }
+    return end;
   }
 
   /** End of stream: a last line without a final newline is still a line. */

@@ -688,6 +688,9 @@ public final class Supervisor {
     synchronized (lock) {
       int[] sources = stderr ? stderrSources : stdoutSources;
       try {
+        // One wall time per read: its lines arrived together (and a clock read per line was a
+        // measurable share of a flood).
+        long now = clock.millis();
         for (int k = 0; k < lines.size(); k++) {
           if (gen != generation || interrupted) {
             return; // a stopped trainer's last words: its decisions are no longer ours to make
@@ -696,7 +699,6 @@ public final class Supervisor {
             rememberStderr(lines.text(k));
           }
           for (int i : sources) {
-            long now = clock.millis();
             handle(i, intake.accept(i, lines.bytes(), lines.offset(k), lines.length(k), now,
                 lines.cut(k)), now);
           }

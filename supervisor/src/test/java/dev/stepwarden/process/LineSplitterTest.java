@@ -13,6 +13,7 @@ import net.jqwik.api.Arbitrary;
 import net.jqwik.api.ForAll;
 import net.jqwik.api.Property;
 import net.jqwik.api.Provide;
+import net.jqwik.api.Tuple;
 import net.jqwik.api.constraints.IntRange;
 import net.jqwik.api.constraints.Size;
 import org.junit.jupiter.api.Test;
@@ -124,6 +125,30 @@ class LineSplitterTest {
       ts.forEach(b::writeBytes);
       return b.toByteArray();
     });
+  }
+
+  @Property(tries = 1000)
+  void theEightByteScanFindsTheSameBreakAsAByteLoop(@ForAll("breakBytes") byte[] b,
+      @ForAll @IntRange(max = 40) int from) {
+    int start = Math.min(from, b.length);
+    int expected = b.length;
+    for (int k = start; k < b.length; k++) {
+      if (b[k] == '\n' || b[k] == '\r') {
+        expected = k;
+        break;
+      }
+    }
+    assertThat(LineSplitter.nextBreak(b, start, b.length)).isEqualTo(expected);
+  }
+
+  /** Long runs without a break, of bytes next to the breaks in value, and some breaks. */
+  @Provide
+  Arbitrary<byte[]> breakBytes() {
+    return Arbitraries.frequency(Tuple.of(1, (byte) '\n'), Tuple.of(1, (byte) '\r'),
+        Tuple.of(6, (byte) 0x09), Tuple.of(6, (byte) 0x0B), Tuple.of(6, (byte) 0x0C),
+        Tuple.of(6, (byte) 0x0E), Tuple.of(6, (byte) 0x8A), Tuple.of(6, (byte) 0x8D),
+        Tuple.of(6, (byte) 0xFF), Tuple.of(6, (byte) 0x00), Tuple.of(20, (byte) 'a'))
+        .array(byte[].class).ofMaxSize(70);
   }
 
   @Property(tries = 400)
