@@ -1,10 +1,10 @@
 #!/bin/sh
 # Whole-process flood benchmark: the same generated JSON-lines file through
-#   1. cat FILE | wc -l                                (the pipe's line rate)
+#   1. cat FILE | wc -l (the pipe's line rate) and 4., three interleaved rounds, medians
 #   2. python3: for line in sys.stdin: json.loads(line)
 #   3. IntakeFlood: cat FILE via the process layer -> intake -> guard engine (one JVM)
 #   4. stepwarden run --rules G -- cat FILE           (the whole supervisor, run dir and all)
-#   5. a Python trainer flooding stdout: to /dev/null vs under stepwarden run
+#   5. a Python trainer flooding stdout: to /dev/null, into | cat, and under stepwarden run (x3)
 #   6. stepwarden run -- cat FILE FILE: peak resident memory after 2 x LINES samples
 # Usage: supervisor/bench/flood.sh [LINES]   (default 5000000). Needs python3, /usr/bin/time.
 set -eu
@@ -41,8 +41,6 @@ echo "file: $F  lines: $N  bytes: $(wc -c < "$F")"
 rate() { python3 -c "import sys; print(f'{int(sys.argv[1])/float(sys.argv[2]):,.0f} lines/s')" "$N" "$1"; }
 secs() { /usr/bin/time -f %e "$@" 2>&1 >/dev/null | tail -1; }
 
-T_CAT=$( { /usr/bin/time -f %e sh -c "cat '$F' | wc -l >/dev/null"; } 2>&1 | tail -1)
-echo "cat | wc -l:          ${T_CAT}s  $(rate "$T_CAT")"
 
 T_PY=$( { /usr/bin/time -f %e python3 -c 'import sys, json
 for line in sys.stdin: json.loads(line)' < "$F"; } 2>&1 | tail -1)
@@ -59,14 +57,27 @@ guards:
     when: { rises: { series: train, above_best: 3.0, samples: 3 } }
     do: { scale: 0.5 }
 YAML
-/usr/bin/time -o "$W/time.txt" -f "%e %M" java $RUNJVM -jar "$JAR" run --quiet --rules "$W/flood.yaml" \
-  --run-dir "$W/runs" -- cat "$F" >/dev/null 2>"$W/run.err" || true
-OUT=$(tail -1 "$W/time.txt")
-T_RUN=${OUT% *}; RSS_KB=${OUT#* }
-rm -rf "$W/runs" # the logs of a flood are as big as the file: free the space
-echo "stepwarden run -- cat: ${T_RUN}s  $(rate "$T_RUN")  peak RSS $((RSS_KB / 1024)) MB"
-python3 -c "import sys; c,r,p=map(float,sys.argv[1:]); print(f'ratios: run/cat = {c/r:.1%} of the pipe rate; run vs python = {p/r:.1f}x')" \
-  "$T_CAT" "$T_RUN" "$T_PY"
+# Side by side, three interleaved rounds, medians: the pipe's line rate and the whole supervisor.
+: > "$W/side.txt"
+for round in 1 2 3; do
+  T_CAT=$( { /usr/bin/time -f %e sh -c "cat '$F' | wc -l >/dev/null"; } 2>&1 | tail -1)
+  /usr/bin/time -o "$W/time.txt" -f "%e %M" java $RUNJVM -jar "$JAR" run --quiet \
+    --rules "$W/flood.yaml" --run-dir "$W/runs" -- cat "$F" >/dev/null 2>"$W/run.err" || true
+  OUT=$(tail -1 "$W/time.txt")
+  T_RUN=${OUT% *}; RSS_KB=${OUT#* }
+  rm -rf "$W/runs" # the logs of a flood are as big as the file: free the space
+  echo "round $round: cat | wc -l ${T_CAT}s ($(rate "$T_CAT")), stepwarden run -- cat ${T_RUN}s" \
+    "($(rate "$T_RUN")), peak RSS $((RSS_KB / 1024)) MB"
+  echo "$T_CAT $T_RUN" >> "$W/side.txt"
+done
+python3 - "$W/side.txt" "$T_PY" "$N" <<'PY'
+import statistics, sys
+rows = [list(map(float, l.split())) for l in open(sys.argv[1]) if l.strip()]
+c, r = (statistics.median(x) for x in zip(*rows))
+p, n = float(sys.argv[2]), int(sys.argv[3])
+print(f"medians: cat | wc -l {n/c:,.0f} lines/s, stepwarden run -- cat {n/r:,.0f} lines/s")
+print(f"ratios: run/cat = {c/r:.1%} of the pipe rate; run vs python = {p/r:.1f}x")
+PY
 
 cat > "$W/trainer.py" <<'PY'
 import json, sys, time
@@ -77,15 +88,27 @@ sys.stdout.flush()
 print(f"trainer_seconds={time.perf_counter() - t:.3f}", file=sys.stderr)
 PY
 M=$((N / 5))
-A=$(python3 "$W/trainer.py" "$M" 2>&1 >/dev/null | sed 's/.*=//')
-java $RUNJVM -jar "$JAR" run --quiet --rules "$W/flood.yaml" --run-dir "$W/runs2" -- python3 \
-  "$W/trainer.py" "$M" >/dev/null 2>"$W/run2.err" || true
-# --run-dir names the run directory itself; the trainer's stderr log is in it
-B=$(cat "$W"/runs2/trainer.stderr.log "$W"/runs2/*/trainer.stderr.log 2>/dev/null \
-  | grep -o 'trainer_seconds=[0-9.]*' | sed 's/.*=//' | tail -1)
-rm -rf "$W/runs2"
-echo "trainer flooding $M lines: to /dev/null ${A}s, under stepwarden ${B:-?}s"
-[ -n "${B:-}" ] && python3 -c "import sys; a,b=map(float,sys.argv[1:]); print(f'trainer slowdown: {b/a-1:+.1%}')" "$A" "$B"
+# Three interleaved rounds (the figure is noisy on a shared machine): the trainer to /dev/null,
+# into a plain pipe read by cat (what any reader of the pipe costs it), and under stepwarden.
+: > "$W/rounds.txt"
+for round in 1 2 3; do
+  A=$(python3 "$W/trainer.py" "$M" 2>&1 >/dev/null | sed 's/.*=//')
+  P=$( { python3 "$W/trainer.py" "$M" | cat >/dev/null; } 2>&1 | sed 's/.*=//')
+  java $RUNJVM -jar "$JAR" run --quiet --rules "$W/flood.yaml" --run-dir "$W/runs2" -- python3 \
+    "$W/trainer.py" "$M" >/dev/null 2>"$W/run2.err" || true
+  # --run-dir names the run directory itself; the trainer's stderr log is in it
+  B=$(grep -o 'trainer_seconds=[0-9.]*' "$W/runs2/trainer.stderr.log" 2>/dev/null | sed 's/.*=//')
+  rm -rf "$W/runs2"
+  echo "round $round, trainer flooding $M lines: /dev/null ${A}s, | cat ${P}s, stepwarden ${B:-?}s"
+  echo "$A $P ${B:-nan}" >> "$W/rounds.txt"
+done
+python3 - "$W/rounds.txt" <<'PY'
+import statistics, sys
+rows = [list(map(float, l.split())) for l in open(sys.argv[1]) if l.strip()]
+a, p, b = (statistics.median(c) for c in zip(*rows))
+print(f"trainer slowdown (medians): {b/a-1:+.1%} against /dev/null, {b/p-1:+.1%} against | cat "
+      f"(the pipe alone: {p/a-1:+.1%})")
+PY
 
 /usr/bin/time -o "$W/time3.txt" -f "%e %M" java $RUNJVM -jar "$JAR" run --quiet --rules "$W/flood.yaml" \
   --run-dir "$W/runs3" -- cat "$F" "$F" >/dev/null 2>"$W/run3.err" || true
