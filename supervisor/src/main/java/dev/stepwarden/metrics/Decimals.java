@@ -125,6 +125,17 @@ final class Decimals {
     if (i != to) {
       return NOT_A_NUMBER;
     }
+    return value(mant, exp10, truncated, neg, s, from, to);
+  }
+
+  /**
+   * The double of a token {@code s[from, to)} already scanned into its first 18 significant
+   * digits {@code mant} (leading zeros skipped), the power of ten {@code exp10} that scales them,
+   * whether nonzero digits were dropped ({@code truncated}) and the sign: the tail of {@link
+   * #parse(byte[], int, int)}, for scanners that read the digits themselves.
+   */
+  static double value(long mant, int exp10, boolean truncated, boolean neg, byte[] s, int from,
+      int to) {
     if (mant == 0) {
       return neg ? -0.0 : 0.0;
     }

@@ -44,6 +44,7 @@ public final class MetricsIntake {
   private static final int RATE = 2;
   private static final int REVISION = 3;
   private static final int FIRST_SERIES = 4;
+  private static final int[] NO_SLOTS = new int[0];
 
   private final ReadPlan plan;
   private final LineParser parser;
@@ -53,6 +54,17 @@ public final class MetricsIntake {
   private final String[] seriesNames;
   private final double[] values;
   private final long[] stamp;
+  /**
+   * By the parser's key id ({@link LineParser.Fields#put(int, String, double, byte[], int, int)}):
+   * the key's slots, found in {@code slots} at its first sighting (null before, empty for a key
+   * nobody wants).
+   */
+  private final int[][] slotsById = new int[KeyCache.MAX_ENTRIES][];
+  /**
+   * By key id: the key's part in keysSeen is settled (it was added, or never can be: the set is
+   * full or its lines are over). A key with no slots and this set needs no value any more.
+   */
+  private final boolean[] seenById = new boolean[KeyCache.MAX_ENTRIES];
   private final Set<String> keysSeen = new HashSet<>();
   /** Per slot: its key appeared in some line (cheaper than asking keysSeen on every line). */
   private final boolean[] slotSeen;
@@ -69,6 +81,17 @@ public final class MetricsIntake {
     @Override
     public void put(String key, double value, byte[] t, int from, int to) {
       take(key, value, t, from, to);
+    }
+
+    @Override
+    public void put(int id, String key, double value, byte[] t, int from, int to) {
+      take(id, key, value, t, from, to);
+    }
+
+    @Override
+    public boolean wants(int id) {
+      int[] s = slotsById[id];
+      return s == null || s.length > 0 || !seenById[id];
     }
   };
   private long lines;
@@ -90,14 +113,14 @@ public final class MetricsIntake {
    * axis) instead of counting their own; null to count.
    */
   MetricsIntake(ReadPlan plan, LongSupplier sharedStep) {
+    this(plan, sharedStep, parserFor(plan));
+  }
+
+  /** An intake reading with {@code parser} instead of its format's own (tests compare two). */
+  MetricsIntake(ReadPlan plan, LongSupplier sharedStep, LineParser parser) {
     this.plan = Objects.requireNonNull(plan, "plan");
     this.sharedStep = sharedStep;
-    this.parser = switch (plan.format()) {
-      case JSON -> new JsonLineParser();
-      case PAIRS -> new PairsLineParser();
-      case PATTERN -> new PatternLineParser(plan.pattern(), groupNames(plan.pattern()));
-      case CSV -> new CsvLineParser();
-    };
+    this.parser = Objects.requireNonNull(parser, "parser");
     int n = FIRST_SERIES + plan.series().size();
     values = new double[n];
     stamp = new long[n];
@@ -115,6 +138,15 @@ public final class MetricsIntake {
     }
   }
 
+  private static LineParser parserFor(ReadPlan plan) {
+    return switch (plan.format()) {
+      case JSON -> new JsonLineParser();
+      case PAIRS -> new PairsLineParser();
+      case PATTERN -> new PatternLineParser(plan.pattern(), groupNames(plan.pattern()));
+      case CSV -> new CsvLineParser();
+    };
+  }
+
   private void want(String key, int slot) {
     if (key == null) {
       return;
@@ -126,21 +158,45 @@ public final class MetricsIntake {
   }
 
   private void take(String key, double v, byte[] t, int from, int to) {
+    seen(key);
+    int[] s = slots.get(key);
+    if (s != null) {
+      fill(s, v, t, from, to);
+    }
+  }
+
+  /** Like {@link #take(String, double, byte[], int, int)}, the slots found by the key's id. */
+  private void take(int id, String key, double v, byte[] t, int from, int to) {
+    int[] s = slotsById[id];
+    if (s == null) {
+      s = slots.getOrDefault(key, NO_SLOTS);
+      slotsById[id] = s;
+    }
+    if (!seenById[id]) {
+      seen(key);
+      seenById[id] = true; // added now, or it never will be: lines only grow, the set never shrinks
+    }
+    if (s.length > 0) {
+      fill(s, v, t, from, to);
+    }
+  }
+
+  private void seen(String key) {
     if (lines <= KEYS_SEEN_LINES && keysSeen.size() < KEYS_SEEN_MAX) {
       keysSeen.add(key); // for the warning's "keys seen", which is given after 1000 lines
     }
-    int[] s = slots.get(key);
-    if (s != null) {
-      for (int slot : s) {
-        values[slot] = v;
-        stamp[slot] = lines;
-        slotSeen[slot] = true;
-        textFrom[slot] = from;
-        textTo[slot] = to;
-      }
-      if (t != null) {
-        text = t;
-      }
+  }
+
+  private void fill(int[] s, double v, byte[] t, int from, int to) {
+    for (int slot : s) {
+      values[slot] = v;
+      stamp[slot] = lines;
+      slotSeen[slot] = true;
+      textFrom[slot] = from;
+      textTo[slot] = to;
+    }
+    if (t != null) {
+      text = t;
     }
   }
 
