@@ -345,6 +345,15 @@ final class JsonLineParser implements LineParser {
       p++;
     } else if (p < e && (c = l[p]) >= '1' && c <= '9') {
       do {
+        if (digits <= 10 && p + 8 <= e) { // eight more digits all fit: take them at once
+          long w = Decimals.eightBytes(l, p);
+          if (Decimals.eightDigits(w)) {
+            mant = mant * 100_000_000 + Decimals.eightDigitValue(w);
+            digits += 8;
+            p += 8;
+            continue;
+          }
+        }
         if (digits < 18) {
           mant = mant * 10 + (c - '0');
           digits++;
@@ -360,7 +369,20 @@ final class JsonLineParser implements LineParser {
     }
     if (p < e && l[p] == '.') {
       int first = ++p;
-      while (p < e && (c = l[p]) >= '0' && c <= '9') {
+      while (true) {
+        if (mant != 0 && digits <= 10 && p + 8 <= e) { // as above; leading zeros one by one
+          long w = Decimals.eightBytes(l, p);
+          if (Decimals.eightDigits(w)) {
+            mant = mant * 100_000_000 + Decimals.eightDigitValue(w);
+            digits += 8;
+            exp10 -= 8;
+            p += 8;
+            continue;
+          }
+        }
+        if (p >= e || (c = l[p]) < '0' || c > '9') {
+          break;
+        }
         if (digits < 18) {
           if (mant != 0 || c != '0') {
             mant = mant * 10 + (c - '0');

@@ -107,6 +107,28 @@ class FastPathAgreementTest {
   }
 
   @Test
+  void eightDigitsAtOnceMatchDigitByDigitAndAnyOtherByteIsRefused() {
+    Random rnd = new Random(3);
+    byte[] near = {'0', '9', '/', ':', ' ', '.', 'e', '-', 0, (byte) 0xFA, (byte) 0xC3, 0x7F};
+    for (int t = 0; t < 200_000; t++) {
+      byte[] b = new byte[8];
+      boolean digits = true;
+      long value = 0;
+      for (int k = 0; k < 8; k++) {
+        b[k] = rnd.nextInt(4) > 0 ? (byte) ('0' + rnd.nextInt(10)) : near[rnd.nextInt(near.length)];
+        digits &= b[k] >= '0' && b[k] <= '9';
+        value = value * 10 + (b[k] - '0');
+      }
+      long w = Decimals.eightBytes(b, 0);
+      assertThat(Decimals.eightDigits(w)).as(new String(b, StandardCharsets.ISO_8859_1))
+          .isEqualTo(digits);
+      if (digits) {
+        assertThat(Decimals.eightDigitValue(w)).isEqualTo(value);
+      }
+    }
+  }
+
+  @Test
   void keysBeyondTheCacheCapacityReadTheSameAndKeepTheirIds() {
     JsonLineParser fast = new JsonLineParser();
     ReferenceJsonLineParser ref = new ReferenceJsonLineParser();
