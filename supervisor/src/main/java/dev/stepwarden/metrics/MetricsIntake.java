@@ -53,6 +53,7 @@ public final class MetricsIntake {
   private final Map<String, int[]> slots = new HashMap<>();
   private final String[] seriesNames;
   private final double[] values;
+  /** Per slot: the line (counted from 1) that last set it; 0 while its key never appeared. */
   private final long[] stamp;
   /**
    * By the parser's key id ({@link LineParser.Fields#put(int, String, double, byte[], int, int)}):
@@ -66,8 +67,6 @@ public final class MetricsIntake {
    */
   private final boolean[] seenById = new boolean[KeyCache.MAX_ENTRIES];
   private final Set<String> keysSeen = new HashSet<>();
-  /** Per slot: its key appeared in some line (cheaper than asking keysSeen on every line). */
-  private final boolean[] slotSeen;
   /** Per slot, for the current line: where its number is printed (valid JSON), or from = -1. */
   private final int[] textFrom;
   private final int[] textTo;
@@ -124,7 +123,6 @@ public final class MetricsIntake {
     int n = FIRST_SERIES + plan.series().size();
     values = new double[n];
     stamp = new long[n];
-    slotSeen = new boolean[n];
     textFrom = new int[n];
     textTo = new int[n];
     seriesNames = plan.series().keySet().toArray(new String[0]);
@@ -191,7 +189,6 @@ public final class MetricsIntake {
     for (int slot : s) {
       values[slot] = v;
       stamp[slot] = lines;
-      slotSeen[slot] = true;
       textFrom[slot] = from;
       textTo[slot] = to;
     }
@@ -404,7 +401,7 @@ public final class MetricsIntake {
     List<String> out = new ArrayList<>();
     int i = FIRST_SERIES;
     for (Map.Entry<String, String> e : plan.series().entrySet()) {
-      if (!slotSeen[i++]) {
+      if (stamp[i++] == 0) { // never stamped: its key appeared in no line (lines count from 1)
         out.add(e.getKey() + " (key '" + e.getValue() + "')");
       }
     }
