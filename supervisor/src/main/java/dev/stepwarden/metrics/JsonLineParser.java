@@ -42,6 +42,16 @@ final class JsonLineParser implements LineParser {
   private boolean keyInLine;
   private int keyFrom;
   private int keyHash;
+  /** The id of the key just read when it was expected there, else -1 (look it up). */
+  private int keyKnown = -1;
+  /**
+   * Top-level members begun in this line; and per member position, the id the key there had
+   * last time (-1: none yet). Trainers print the same keys in the same order on every line, so
+   * the expected id is confirmed by comparing the bytes; only keys read off the line as they
+   * are (no escapes) are recorded, so their bytes in a line are their spelling.
+   */
+  private int member;
+  private final int[] expected = newExpected();
 
   /** Thrown internally on a syntax error; preallocated, no stack trace. */
   private static final class Stop extends RuntimeException {
@@ -53,6 +63,14 @@ final class JsonLineParser implements LineParser {
   }
 
   private static final Stop STOP = new Stop();
+
+  private static final int EXPECTED = 32;
+
+  private static int[] newExpected() {
+    int[] e = new int[EXPECTED];
+    java.util.Arrays.fill(e, -1);
+    return e;
+  }
 
   @Override
   public boolean parse(String text, Fields out) {
@@ -78,6 +96,7 @@ final class JsonLineParser implements LineParser {
     pos = off;
     end = off + len;
     any = false;
+    member = 0;
     try {
       skipWs();
       if (pos >= end || b[pos] != '{') {
@@ -161,6 +180,20 @@ final class JsonLineParser implements LineParser {
    * sets keyInLine, keyFrom and keyHash.
    */
   private int readKey(int prefixLen, int prefixHash) {
+    keyKnown = -1;
+    if (prefixLen == 0 && member++ < EXPECTED) {
+      int id = expected[member - 1];
+      if (id >= 0 && keys.spelledAt(id, line, pos, end)) {
+        int len = keys.length(id);
+        ensure(len); // as below (a cached key is short: no growth)
+        keyInLine = true;
+        keyFrom = pos;
+        keyHash = keys.hashOf(id);
+        keyKnown = id;
+        pos += len + 1;
+        return len;
+      }
+    }
     // Fast path: a key without escapes or control chars is hashed as it is scanned and left in
     // the line (or copied after the prefix in one go).
     int start = pos;
@@ -490,8 +523,17 @@ final class JsonLineParser implements LineParser {
 
   /** The cache id of the key just read, -1 when it has none (too long, or the cache is full). */
   private int keyId(int keyLen) {
-    return keyInLine ? keys.id(line, keyFrom, keyLen, keyHash)
-        : keys.id(keyBuf, 0, keyLen, keyHash);
+    if (keyKnown >= 0) {
+      return keyKnown;
+    }
+    if (!keyInLine) {
+      return keys.id(keyBuf, 0, keyLen, keyHash);
+    }
+    int id = keys.id(line, keyFrom, keyLen, keyHash);
+    if (member <= EXPECTED) {
+      expected[member - 1] = id; // keyInLine: a top-level key, the member-th of the line
+    }
+    return id;
   }
 
   private String newKey(int keyLen) {

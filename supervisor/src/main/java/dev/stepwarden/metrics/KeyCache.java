@@ -20,6 +20,14 @@ final class KeyCache {
   private final int[] hashes = new int[SLOTS];
   private final int[] ids = new int[SLOTS];
   private final String[] keys = new String[MAX_ENTRIES];
+  private final byte[][] spellingOf = new byte[MAX_ENTRIES][];
+  private final int[] hashOf = new int[MAX_ENTRIES];
+  /**
+   * By id, for keys of up to 7 bytes: the key and its closing quote as {@link
+   * Decimals#eightBytes} reads them, and the mask of those bytes (0 for longer keys).
+   */
+  private final long[] quoted = new long[MAX_ENTRIES];
+  private final long[] quotedMask = new long[MAX_ENTRIES];
   private int entries;
 
   /** The hash {@link #id} expects: {@code h = 31 h + b} over the (signed) bytes. */
@@ -57,10 +65,19 @@ final class KeyCache {
         if (entries >= MAX_ENTRIES) {
           return -1;
         }
-        spelled[slot] = java.util.Arrays.copyOfRange(buf, from, from + len);
+        byte[] copy = java.util.Arrays.copyOfRange(buf, from, from + len);
+        spelled[slot] = copy;
         hashes[slot] = h;
         ids[slot] = entries;
         keys[entries] = new String(buf, from, len, StandardCharsets.UTF_8);
+        spellingOf[entries] = copy;
+        hashOf[entries] = h;
+        if (len < 8) {
+          byte[] q = java.util.Arrays.copyOf(copy, 8);
+          q[len] = '"';
+          quoted[entries] = Decimals.eightBytes(q, 0);
+          quotedMask[entries] = len == 7 ? -1L : (1L << (8 * (len + 1))) - 1;
+        }
         return entries++;
       }
       if (hashes[slot] == h && s.length == len && same(s, buf, from)) {
@@ -73,6 +90,29 @@ final class KeyCache {
   /** The key of {@code id}, one shared string. */
   String key(int id) {
     return keys[id];
+  }
+
+  /** The length in bytes of the key of {@code id}. */
+  int length(int id) {
+    return spellingOf[id].length;
+  }
+
+  /** The {@link #hash} of the key of {@code id}. */
+  int hashOf(int id) {
+    return hashOf[id];
+  }
+
+  /**
+   * Whether {@code b[at, end)} starts with the bytes of the key of {@code id} and a closing
+   * quote: an id expected at a position of the line is confirmed by comparing, not hashing.
+   */
+  boolean spelledAt(int id, byte[] b, int at, int end) {
+    long mask = quotedMask[id];
+    if (mask != 0 && at + 8 <= end) {
+      return ((Decimals.eightBytes(b, at) ^ quoted[id]) & mask) == 0;
+    }
+    byte[] s = spellingOf[id];
+    return at + s.length < end && b[at + s.length] == '"' && same(s, b, at);
   }
 
   /** Keys are short: a plain loop beats the vectorized mismatch's set-up. */
