@@ -117,24 +117,21 @@ final class JsonLineParser implements LineParser {
    * {@code prefixHash}, are the prefix.
    */
   private void object(int depth, int prefixLen, int prefixHash, Fields out) {
-    skipWs();
-    if (peek() == '}') {
+    if (next() == '}') {
       pos++;
       return;
     }
     while (true) {
-      if (peek() != '"') {
+      if (next() != '"') {
         throw STOP;
       }
       pos++;
       int keyLen = readKey(prefixLen, prefixHash);
-      skipWs();
-      if (peek() != ':') {
+      if (next() != ':') {
         throw STOP;
       }
       pos++;
-      skipWs();
-      char c = peek();
+      int c = next();
       if (c == '{') {
         pos++;
         if (depth + 1 >= MAX_DEPTH) {
@@ -161,11 +158,9 @@ final class JsonLineParser implements LineParser {
       } else {
         number(keyLen, out);
       }
-      skipWs();
-      c = peek();
+      c = next();
       pos++;
       if (c == ',') {
-        skipWs();
         continue;
       }
       if (c == '}') {
@@ -174,6 +169,7 @@ final class JsonLineParser implements LineParser {
       throw STOP;
     }
   }
+
 
   /**
    * Reads a key (after its opening quote) after the prefix; returns the key's whole length and
@@ -638,12 +634,20 @@ final class JsonLineParser implements LineParser {
     }
   }
 
-  private char peek() {
-    if (pos >= end) {
-      throw STOP;
+  /** Skips whitespace; returns the byte there (pos on it), or stops at the end of the line. */
+  private int next() {
+    byte[] l = line;
+    int e = end;
+    for (int p = pos; p < e; p++) {
+      byte c = l[p];
+      if (c > ' ' || (c != ' ' && c != '\t' && c != '\n' && c != '\r')) {
+        pos = p;
+        return c & 0xFF;
+      }
     }
-    return (char) (line[pos] & 0xFF);
+    throw STOP;
   }
+
 
   private void ensure(int n) {
     if (n > keyBuf.length) {

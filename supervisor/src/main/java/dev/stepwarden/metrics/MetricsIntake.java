@@ -66,6 +66,8 @@ public final class MetricsIntake {
    * full or its lines are over). A key with no slots and this set needs no value any more.
    */
   private final boolean[] seenById = new boolean[KeyCache.MAX_ENTRIES];
+  /** By key id: no slots and seenById, so its value is needed no more. */
+  private final boolean[] unwanted = new boolean[KeyCache.MAX_ENTRIES];
   private final Set<String> keysSeen = new HashSet<>();
   /** Per slot, for the current line: where its number is printed (valid JSON), or from = -1. */
   private final int[] textFrom;
@@ -89,8 +91,7 @@ public final class MetricsIntake {
 
     @Override
     public boolean wants(int id) {
-      int[] s = slotsById[id];
-      return s == null || s.length > 0 || !seenById[id];
+      return !unwanted[id];
     }
   };
   private long lines;
@@ -176,6 +177,8 @@ public final class MetricsIntake {
     }
     if (s.length > 0) {
       fill(s, v, t, from, to);
+    } else {
+      unwanted[id] = true;
     }
   }
 
