@@ -66,6 +66,16 @@ final class JsonLineParser implements LineParser {
 
   private static final int EXPECTED = 32;
 
+  /** The ASCII bytes a number token (or bare word) runs on: digits, . - + and letters. */
+  private static final boolean[] TOKEN = new boolean[128];
+
+  static {
+    for (int c = 0; c < 128; c++) {
+      TOKEN[c] = (c >= '0' && c <= '9') || c == '.' || c == '-' || c == '+'
+          || (c >= 'a' && c <= 'z') || (c >= 'A' && c <= 'Z');
+    }
+  }
+
   private static int[] newExpected() {
     int[] e = new int[EXPECTED];
     java.util.Arrays.fill(e, -1);
@@ -370,48 +380,47 @@ final class JsonLineParser implements LineParser {
     int exp10 = 0;
     boolean truncated = false;
     int c;
+    // Eight digits at once while they all fit the 18 kept: once eight bytes are not all digits,
+    // no later window of the same run can be, so the rest go one by one.
     if (p < e && l[p] == '0') {
       p++;
-    } else if (p < e && (c = l[p]) >= '1' && c <= '9') {
-      do {
-        if (digits <= 10 && p + 8 <= e) { // eight more digits all fit: take them at once
-          long w = Decimals.eightBytes(l, p);
-          if (Decimals.eightDigits(w)) {
-            mant = mant * 100_000_000 + Decimals.eightDigitValue(w);
-            digits += 8;
-            p += 8;
-            continue;
-          }
-        }
+    } else if (p < e && l[p] >= '1' && l[p] <= '9') {
+      long w;
+      while (digits <= 10 && p + 8 <= e && Decimals.eightDigits(w = Decimals.eightBytes(l, p))) {
+        mant = mant * 100_000_000 + Decimals.eightDigitValue(w);
+        digits += 8;
+        p += 8;
+      }
+      while (p < e && (c = l[p]) >= '0' && c <= '9') {
         if (digits < 18) {
-          mant = mant * 10 + (c - '0');
+          mant = mant * 10 + (c - '0'); // no leading zero: the first digit is 1-9
           digits++;
         } else {
           exp10++;
           truncated |= c != '0';
         }
         p++;
-      } while (p < e && (c = l[p]) >= '0' && c <= '9');
+      }
     } else {
       otherNumber(keyLen, out);
       return;
     }
     if (p < e && l[p] == '.') {
       int first = ++p;
-      while (true) {
-        if (mant != 0 && digits <= 10 && p + 8 <= e) { // as above; leading zeros one by one
-          long w = Decimals.eightBytes(l, p);
-          if (Decimals.eightDigits(w)) {
-            mant = mant * 100_000_000 + Decimals.eightDigitValue(w);
-            digits += 8;
-            exp10 -= 8;
-            p += 8;
-            continue;
-          }
+      if (mant == 0) {
+        while (p < e && l[p] == '0') { // leading zeros of a number below 1: not significant
+          exp10--;
+          p++;
         }
-        if (p >= e || (c = l[p]) < '0' || c > '9') {
-          break;
-        }
+      }
+      long w;
+      while (digits <= 10 && p + 8 <= e && Decimals.eightDigits(w = Decimals.eightBytes(l, p))) {
+        mant = mant * 100_000_000 + Decimals.eightDigitValue(w); // mant != 0 or w starts 1-9
+        digits += 8;
+        exp10 -= 8;
+        p += 8;
+      }
+      while (p < e && (c = l[p]) >= '0' && c <= '9') {
         if (digits < 18) {
           if (mant != 0 || c != '0') {
             mant = mant * 10 + (c - '0');
@@ -453,8 +462,7 @@ final class JsonLineParser implements LineParser {
       throw STOP; // no delimiter after it: the line was cut, the number may be too
     }
     c = l[p];
-    if ((c >= '0' && c <= '9') || c == '.' || c == '-' || c == '+' || (c >= 'a' && c <= 'z')
-        || (c >= 'A' && c <= 'Z')) {
+    if (c >= 0 && TOKEN[c]) {
       otherNumber(keyLen, out); // the token goes on ("0123", "1.5.2", "2x"): not this grammar
       return;
     }
