@@ -11,11 +11,13 @@ import java.nio.charset.StandardCharsets;
  * <p>Design: a single forward scan over the line's UTF-8 bytes (the pump's own buffer, or a
  * string encoded into a reused one) with no per-line allocation beyond a new key's first
  * sighting (see {@link KeyCache}) and the rare number {@link Decimals} must hand to the JDK. All
- * JSON syntax is ASCII, so multi-byte characters can only sit inside strings and keys. A key is
- * hashed while it is scanned and named to the receiver by its cache id as well as by its string
- * ({@link LineParser.Fields#put(int, String, double, byte[], int, int)}); a receiver that does
- * not want a key's value ({@link LineParser.Fields#wants}) gets its number checked, not
- * converted. A number is scanned once: its RFC 8259 s. 6 grammar is checked while its digits are
+ * JSON syntax is ASCII, so multi-byte characters can only sit inside strings and keys. A
+ * top-level key is first compared with the key its position had last line (trainers repeat
+ * their keys in order), else hashed while it is scanned and looked up; it is named to the
+ * receiver by its cache id as well as by its string ({@link LineParser.Fields#put(int, String,
+ * double, byte[], int, int)}), and a receiver that does not want a key's value ({@link
+ * LineParser.Fields#wants}) gets its number checked, not converted. A number is scanned once,
+ * eight digits at a time where it can: its RFC 8259 s. 6 grammar is checked while its digits are
  * gathered, so a number token that is valid JSON is handed on as text too (the normalized file
  * can carry it as printed instead of formatting the double again); any other spelling takes the
  * general path ({@link Decimals#parse}). Malformed input never throws: the scan stops at the

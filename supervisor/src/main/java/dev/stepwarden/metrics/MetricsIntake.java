@@ -17,7 +17,9 @@ import java.util.regex.Pattern;
  *
  * <p>Design: the format parser hands flat key/value pairs to a callback; the intake keeps only
  * the keys it wants (step, epoch, reported rate, applied revision and the configured series) in
- * a fixed slot array, so a line costs no map and no boxing until a {@link Sample} is made. A line
+ * a fixed slot array, so a line costs no map and no boxing until a {@link Sample} is made; a
+ * parser that names keys by id (JSON) has them resolved to slots once, through an array, and is
+ * told which keys' values nobody needs once their part in "keys seen" is settled. A line
  * without any configured series is counted as ignored (progress bars, warnings, tracebacks) but
  * still updates the reported rate and applied revision, which the steering layer uses to confirm
  * a change. When a line prints no step, the step is the shared axis's latest step (an
@@ -63,10 +65,10 @@ public final class MetricsIntake {
   private final int[][] slotsById = new int[KeyCache.MAX_ENTRIES][];
   /**
    * By key id: the key's part in keysSeen is settled (it was added, or never can be: the set is
-   * full or its lines are over). A key with no slots and this set needs no value any more.
+   * full or its lines are over).
    */
   private final boolean[] seenById = new boolean[KeyCache.MAX_ENTRIES];
-  /** By key id: no slots and seenById, so its value is needed no more. */
+  /** By key id: no slots and seenById, so the parser need not convert its value any more. */
   private final boolean[] unwanted = new boolean[KeyCache.MAX_ENTRIES];
   private final Set<String> keysSeen = new HashSet<>();
   /** Per slot, for the current line: where its number is printed (valid JSON), or from = -1. */

@@ -59,7 +59,7 @@ public record ReadPlan(Source source, Path file, Format format, Pattern pattern,
     }
     Map<String, String> named = new LinkedHashMap<>();
     // interned, so the samples' lookups by the usual names ("train") match on identity first
-    series.forEach((n, k) -> named.put(n.intern(), k));
+    series.forEach((n, k) -> named.put(n == null ? null : n.intern(), k));
     series = Collections.unmodifiableMap(named);
     also = also == null ? List.of() : List.copyOf(also);
     Map<String, String> owner = new LinkedHashMap<>();

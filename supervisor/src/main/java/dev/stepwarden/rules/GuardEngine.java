@@ -313,7 +313,8 @@ public final class GuardEngine {
 
     Armed(Guard guard, Detector detector) {
       this.guard = guard;
-      this.series = guard.when().series().intern();
+      String s = guard.when().series();
+      this.series = s == null ? null : s.intern();
       this.detector = detector;
     }
   }
