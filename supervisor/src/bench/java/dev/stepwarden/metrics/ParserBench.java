@@ -49,7 +49,27 @@ public class ParserBench {
     }
   }
 
+  /**
+   * The same calm stretch as a trainer printing more than the guards read: eight top-level keys
+   * and a nested one, of which the guard file wants two (step and loss).
+   */
+  static final byte[][] WIDE = new byte[4096][];
+
+  static {
+    java.util.Random r = new java.util.Random(3);
+    for (int i = 0; i < WIDE.length; i++) {
+      double loss = 0.5 + 0.01 * r.nextDouble();
+      WIDE[i] = ("{\"step\": " + (100_000 + i) + ", \"epoch\": 3, \"loss\": "
+          + NumberExactnessTest.pythonRepr(loss) + ", \"lr\": 0.001, \"grad_norm\": "
+          + NumberExactnessTest.pythonRepr(1 + r.nextDouble()) + ", \"tokens_per_s\": "
+          + (40_000 + r.nextInt(1000)) + ".5, \"mem_gb\": 13.25, \"phase\": \"train\","
+          + " \"timing\": {\"data_ms\": 1.5, \"step_ms\": " + (80 + r.nextInt(9)) + "}}")
+          .getBytes(java.nio.charset.StandardCharsets.UTF_8);
+    }
+  }
+
   private int calm;
+  private int wide;
 
   private final JsonLineParser fast = new JsonLineParser();
   private final JacksonJsonLineParser jackson = new JacksonJsonLineParser();
@@ -124,6 +144,14 @@ public class ParserBench {
   @Benchmark
   public Object intakeAndGuardsFromBytes() {
     byte[] b = CALM[calm = (calm + 1) & 4095];
+    MetricsIntake.Reading r = guarded.accept(b, 0, b.length, 0L, false);
+    return engine.onSample(r.sample());
+  }
+
+  /** As {@link #intakeAndGuardsFromBytes} on a wider line whose other keys nobody reads. */
+  @Benchmark
+  public Object intakeAndGuardsWideLine() {
+    byte[] b = WIDE[wide = (wide + 1) & 4095];
     MetricsIntake.Reading r = guarded.accept(b, 0, b.length, 0L, false);
     return engine.onSample(r.sample());
   }

@@ -20,6 +20,31 @@ final class Decimals {
       1e16, 1e17, 1e18, 1e19, 1e20, 1e21, 1e22};
   private static final long MAX_EXACT = 1L << 53;
 
+  private static final java.lang.invoke.VarHandle LE_LONGS =
+      java.lang.invoke.MethodHandles.byteArrayViewVarHandle(long[].class,
+          java.nio.ByteOrder.LITTLE_ENDIAN);
+
+  /** The eight bytes {@code b[at, at+8)}, the first in the lowest byte. */
+  static long eightBytes(byte[] b, int at) {
+    return (long) LE_LONGS.get(b, at);
+  }
+
+  /** Whether all eight bytes of {@link #eightBytes} are ASCII digits (Lemire 2021, s. 6). */
+  static boolean eightDigits(long w) {
+    return ((w & 0xF0F0_F0F0_F0F0_F0F0L)
+        | (((w + 0x0606_0606_0606_0606L) & 0xF0F0_F0F0_F0F0_F0F0L) >>> 4))
+        == 0x3333_3333_3333_3333L;
+  }
+
+  /** The value of eight ASCII digits read by {@link #eightBytes}, first digit most significant. */
+  static int eightDigitValue(long w) {
+    w -= 0x3030_3030_3030_3030L;
+    w = w * 10 + (w >>> 8); // pairs of digits
+    w = ((w & 0x0000_00FF_0000_00FFL) * (100 + (1_000_000L << 32))
+        + ((w >>> 16) & 0x0000_00FF_0000_00FFL) * (1 + (10_000L << 32))) >>> 32;
+    return (int) w;
+  }
+
   static boolean failed(double v) {
     return Double.doubleToRawLongBits(v) == Double.doubleToRawLongBits(NOT_A_NUMBER);
   }
@@ -125,6 +150,17 @@ final class Decimals {
     if (i != to) {
       return NOT_A_NUMBER;
     }
+    return value(mant, exp10, truncated, neg, s, from, to);
+  }
+
+  /**
+   * The double of a token {@code s[from, to)} already scanned into its first 18 significant
+   * digits {@code mant} (leading zeros skipped), the power of ten {@code exp10} that scales them,
+   * whether nonzero digits were dropped ({@code truncated}) and the sign: the tail of {@link
+   * #parse(byte[], int, int)}, for scanners that read the digits themselves.
+   */
+  static double value(long mant, int exp10, boolean truncated, boolean neg, byte[] s, int from,
+      int to) {
     if (mant == 0) {
       return neg ? -0.0 : 0.0;
     }

@@ -11,11 +11,19 @@ import java.nio.charset.StandardCharsets;
  * <p>Design: a single forward scan over the line's UTF-8 bytes (the pump's own buffer, or a
  * string encoded into a reused one) with no per-line allocation beyond a new key's first
  * sighting (see {@link KeyCache}) and the rare number {@link Decimals} must hand to the JDK. All
- * JSON syntax is ASCII, so multi-byte characters can only sit inside strings and keys. A number
- * token that is valid JSON is also handed on as text, so the normalized file can carry it as
- * printed instead of formatting the double again. Malformed input never throws: the scan stops at the first syntax error and keeps
- * what it read before it (a line cut at the line limit still yields its leading fields). A number
- * is taken only when a delimiter follows it, so a cut line cannot yield a shortened number.
+ * JSON syntax is ASCII, so multi-byte characters can only sit inside strings and keys. A
+ * top-level key is first compared with the key its position had last line (trainers repeat
+ * their keys in order), else hashed while it is scanned and looked up; it is named to the
+ * receiver by its cache id as well as by its string ({@link LineParser.Fields#put(int, String,
+ * double, byte[], int, int)}), and a receiver that does not want a key's value ({@link
+ * LineParser.Fields#wants}) gets its number checked, not converted. A number is scanned once,
+ * eight digits at a time where it can: its RFC 8259 s. 6 grammar is checked while its digits are
+ * gathered, so a number token that is valid JSON is handed on as text too (the normalized file
+ * can carry it as printed instead of formatting the double again); any other spelling takes the
+ * general path ({@link Decimals#parse}). Malformed input never throws: the scan stops at the
+ * first syntax error and keeps what it read before it (a line cut at the line limit still yields
+ * its leading fields). A number is taken only when a delimiter follows it, so a cut line cannot
+ * yield a shortened number.
  * Not thread-safe (reuses its buffers).
  */
 final class JsonLineParser implements LineParser {
@@ -29,6 +37,23 @@ final class JsonLineParser implements LineParser {
   private int pos;
   private int end;
   private boolean any;
+  /**
+   * The key just read, {@link KeyCache#hash} {@code keyHash}: in the line at {@code keyFrom}
+   * when it needed no copy (a top-level key without escapes), else in keyBuf from 0.
+   */
+  private boolean keyInLine;
+  private int keyFrom;
+  private int keyHash;
+  /** The id of the key just read when it was expected there, else -1 (look it up). */
+  private int keyKnown = -1;
+  /**
+   * Top-level members begun in this line; and per member position, the id the key there had
+   * last time (-1: none yet). Trainers print the same keys in the same order on every line, so
+   * the expected id is confirmed by comparing the bytes; only keys read off the line as they
+   * are (no escapes) are recorded, so their bytes in a line are their spelling.
+   */
+  private int member;
+  private final int[] expected = newExpected();
 
   /** Thrown internally on a syntax error; preallocated, no stack trace. */
   private static final class Stop extends RuntimeException {
@@ -40,6 +65,24 @@ final class JsonLineParser implements LineParser {
   }
 
   private static final Stop STOP = new Stop();
+
+  private static final int EXPECTED = 32;
+
+  /** The ASCII bytes a number token (or bare word) runs on: digits, . - + and letters. */
+  private static final boolean[] TOKEN = new boolean[128];
+
+  static {
+    for (int c = 0; c < 128; c++) {
+      TOKEN[c] = (c >= '0' && c <= '9') || c == '.' || c == '-' || c == '+'
+          || (c >= 'a' && c <= 'z') || (c >= 'A' && c <= 'Z');
+    }
+  }
+
+  private static int[] newExpected() {
+    int[] e = new int[EXPECTED];
+    java.util.Arrays.fill(e, -1);
+    return e;
+  }
 
   @Override
   public boolean parse(String text, Fields out) {
@@ -65,13 +108,14 @@ final class JsonLineParser implements LineParser {
     pos = off;
     end = off + len;
     any = false;
+    member = 0;
     try {
       skipWs();
       if (pos >= end || b[pos] != '{') {
         return false;
       }
       pos++;
-      object(0, 0, out);
+      object(0, 0, 0, out);
     } catch (Stop e) {
       // malformed: keep what was read before the error
     } finally {
@@ -80,34 +124,37 @@ final class JsonLineParser implements LineParser {
     return any;
   }
 
-  /** Parses members after the opening brace; {@code prefixLen} chars of keyBuf are the prefix. */
-  private void object(int depth, int prefixLen, Fields out) {
-    skipWs();
-    if (peek() == '}') {
+  /**
+   * Parses members after the opening brace; {@code prefixLen} bytes of keyBuf, hashing to
+   * {@code prefixHash}, are the prefix.
+   */
+  private void object(int depth, int prefixLen, int prefixHash, Fields out) {
+    if (next() == '}') {
       pos++;
       return;
     }
     while (true) {
-      if (peek() != '"') {
+      if (next() != '"') {
         throw STOP;
       }
       pos++;
-      int keyLen = readKey(prefixLen);
-      skipWs();
-      if (peek() != ':') {
+      int keyLen = readKey(prefixLen, prefixHash);
+      if (next() != ':') {
         throw STOP;
       }
       pos++;
-      skipWs();
-      char c = peek();
+      int c = next();
       if (c == '{') {
         pos++;
         if (depth + 1 >= MAX_DEPTH) {
           throw STOP;
         }
         ensure(keyLen + 1);
+        if (keyInLine) {
+          System.arraycopy(line, keyFrom, keyBuf, 0, keyLen);
+        }
         keyBuf[keyLen] = '.';
-        object(depth + 1, keyLen + 1, out);
+        object(depth + 1, keyLen + 1, 31 * keyHash + '.', out);
       } else if (c == '"') {
         pos++;
         stringValue(keyLen, out);
@@ -123,11 +170,9 @@ final class JsonLineParser implements LineParser {
       } else {
         number(keyLen, out);
       }
-      skipWs();
-      c = peek();
+      c = next();
       pos++;
       if (c == ',') {
-        skipWs();
         continue;
       }
       if (c == '}') {
@@ -137,26 +182,57 @@ final class JsonLineParser implements LineParser {
     }
   }
 
-  /** Reads a key (after its opening quote) into keyBuf after the prefix; returns the new length. */
-  private int readKey(int prefixLen) {
-    // Fast path: a key without escapes or control chars is copied in one go.
+
+  /**
+   * Reads a key (after its opening quote) after the prefix; returns the key's whole length and
+   * sets keyInLine, keyFrom and keyHash.
+   */
+  private int readKey(int prefixLen, int prefixHash) {
+    keyKnown = -1;
+    if (prefixLen == 0 && member++ < EXPECTED) {
+      int id = expected[member - 1];
+      if (id >= 0 && keys.spelledAt(id, line, pos, end)) {
+        int len = keys.length(id);
+        ensure(len); // as below (a cached key is short: no growth)
+        keyInLine = true;
+        keyFrom = pos;
+        keyHash = keys.hashOf(id);
+        keyKnown = id;
+        pos += len + 1;
+        return len;
+      }
+    }
+    // Fast path: a key without escapes or control chars is hashed as it is scanned and left in
+    // the line (or copied after the prefix in one go).
     int start = pos;
     int p = pos;
     byte[] l = line;
+    int h = prefixHash;
     while (p < end) {
       byte c = l[p];
       if (c == '"') {
         int len = p - start;
-        ensure(prefixLen + len);
-        System.arraycopy(l, start, keyBuf, prefixLen, len);
+        ensure(prefixLen + len); // also the length limit, as when every key was copied
         pos = p + 1;
+        keyHash = h;
+        if (prefixLen == 0) {
+          keyInLine = true;
+          keyFrom = start;
+          return len;
+        }
+        System.arraycopy(l, start, keyBuf, prefixLen, len);
+        keyInLine = false;
+        keyFrom = 0;
         return prefixLen + len;
       }
       if (c == '\\' || (c >= 0 && c < 0x20)) {
         break;
       }
+      h = 31 * h + c;
       p++;
     }
+    keyInLine = false;
+    keyFrom = 0;
     int n = prefixLen;
     while (true) {
       if (pos >= end) {
@@ -164,6 +240,7 @@ final class JsonLineParser implements LineParser {
       }
       byte raw = line[pos++];
       if (raw == '"') {
+        keyHash = KeyCache.hash(keyBuf, 0, n);
         return n;
       }
       char c;
@@ -280,12 +357,131 @@ final class JsonLineParser implements LineParser {
     if (!escaped && len >= 3 && len <= 9) {
       double v = Decimals.parse(line, start, stop);
       if (!Decimals.failed(v) && !Double.isFinite(v)) {
-        put(keyLen, v, out);
+        put(keyLen, v, null, -1, -1, out);
       }
     }
   }
 
+  /**
+   * A number value. The common case, an RFC 8259 number followed by a delimiter, is read in this
+   * one scan, its digits gathered exactly as {@link Decimals#parse} gathers them; anything else
+   * is left to {@link #otherNumber}, the general path, which decides alike for every token.
+   */
   private void number(int keyLen, Fields out) {
+    byte[] l = line;
+    int e = end;
+    int start = pos;
+    int p = start;
+    boolean neg = false;
+    if (p < e && l[p] == '-') {
+      neg = true;
+      p++;
+    }
+    long mant = 0;
+    int digits = 0; // significant digits kept in mant (18 fit a long)
+    int exp10 = 0;
+    boolean truncated = false;
+    int c;
+    // Eight digits at once while they all fit the 18 kept: once eight bytes are not all digits,
+    // no later window of the same run can be, so the rest go one by one.
+    if (p < e && l[p] == '0') {
+      p++;
+    } else if (p < e && l[p] >= '1' && l[p] <= '9') {
+      long w;
+      while (digits <= 10 && p + 8 <= e && Decimals.eightDigits(w = Decimals.eightBytes(l, p))) {
+        mant = mant * 100_000_000 + Decimals.eightDigitValue(w);
+        digits += 8;
+        p += 8;
+      }
+      while (p < e && (c = l[p]) >= '0' && c <= '9') {
+        if (digits < 18) {
+          mant = mant * 10 + (c - '0'); // no leading zero: the first digit is 1-9
+          digits++;
+        } else {
+          exp10++;
+          truncated |= c != '0';
+        }
+        p++;
+      }
+    } else {
+      otherNumber(keyLen, out);
+      return;
+    }
+    if (p < e && l[p] == '.') {
+      int first = ++p;
+      if (mant == 0) {
+        while (p < e && l[p] == '0') { // leading zeros of a number below 1: not significant
+          exp10--;
+          p++;
+        }
+      }
+      long w;
+      while (digits <= 10 && p + 8 <= e && Decimals.eightDigits(w = Decimals.eightBytes(l, p))) {
+        mant = mant * 100_000_000 + Decimals.eightDigitValue(w); // mant != 0 or w starts 1-9
+        digits += 8;
+        exp10 -= 8;
+        p += 8;
+      }
+      while (p < e && (c = l[p]) >= '0' && c <= '9') {
+        if (digits < 18) {
+          if (mant != 0 || c != '0') {
+            mant = mant * 10 + (c - '0');
+            digits++;
+          }
+          exp10--;
+        } else {
+          truncated |= c != '0';
+        }
+        p++;
+      }
+      if (p == first) {
+        otherNumber(keyLen, out);
+        return;
+      }
+    }
+    if (p < e && ((c = l[p]) == 'e' || c == 'E')) {
+      p++;
+      boolean eneg = false;
+      if (p < e && ((c = l[p]) == '-' || c == '+')) {
+        eneg = c == '-';
+        p++;
+      }
+      int first = p;
+      int x = 0;
+      while (p < e && (c = l[p]) >= '0' && c <= '9') {
+        if (x < 100_000) {
+          x = x * 10 + (c - '0');
+        }
+        p++;
+      }
+      if (p == first) {
+        otherNumber(keyLen, out);
+        return;
+      }
+      exp10 += eneg ? -x : x;
+    }
+    if (p >= e) {
+      throw STOP; // no delimiter after it: the line was cut, the number may be too
+    }
+    c = l[p];
+    if (c >= 0 && TOKEN[c]) {
+      otherNumber(keyLen, out); // the token goes on ("0123", "1.5.2", "2x"): not this grammar
+      return;
+    }
+    pos = p;
+    any = true;
+    int id = keyId(keyLen);
+    if (id < 0) {
+      out.put(newKey(keyLen), Decimals.value(mant, exp10, truncated, neg, l, start, p), l, start,
+          p);
+    } else if (out.wants(id)) {
+      out.put(id, keys.key(id), Decimals.value(mant, exp10, truncated, neg, l, start, p), l,
+          start, p);
+    }
+  }
+
+  /** Any number token that is not a delimited RFC 8259 number: a bare word, '+1', '.5', ... */
+  private void otherNumber(int keyLen, Fields out) {
     int start = pos;
     while (pos < end) {
       byte c = line[pos];
@@ -312,16 +508,43 @@ final class JsonLineParser implements LineParser {
       }
     }
     if (first <= '9' && plainJson(line, start, pos)) {
-      out.put(keys.get(keyBuf, keyLen), v, line, start, pos);
-      any = true;
+      put(keyLen, v, line, start, pos, out);
     } else {
-      put(keyLen, v, out);
+      put(keyLen, v, null, -1, -1, out);
     }
   }
 
-  private void put(int keyLen, double v, Fields out) {
-    out.put(keys.get(keyBuf, keyLen), v);
+  /** Hands on a value read off the general path; {@code text} null when not valid JSON. */
+  private void put(int keyLen, double v, byte[] text, int from, int to, Fields out) {
     any = true;
+    int id = keyId(keyLen);
+    if (id >= 0) {
+      out.put(id, keys.key(id), v, text, from, to);
+    } else if (text == null) {
+      out.put(newKey(keyLen), v);
+    } else {
+      out.put(newKey(keyLen), v, text, from, to);
+    }
+  }
+
+  /** The cache id of the key just read, -1 when it has none (too long, or the cache is full). */
+  private int keyId(int keyLen) {
+    if (keyKnown >= 0) {
+      return keyKnown;
+    }
+    if (!keyInLine) {
+      return keys.id(keyBuf, 0, keyLen, keyHash);
+    }
+    int id = keys.id(line, keyFrom, keyLen, keyHash);
+    if (member <= EXPECTED) {
+      expected[member - 1] = id; // keyInLine: a top-level key, the member-th of the line
+    }
+    return id;
+  }
+
+  private String newKey(int keyLen) {
+    return keyInLine ? new String(line, keyFrom, keyLen, StandardCharsets.UTF_8)
+        : new String(keyBuf, 0, keyLen, StandardCharsets.UTF_8);
   }
 
   /** RFC 8259 s. 6 number grammar: -?(0|[1-9][0-9]*)(.[0-9]+)?([eE][+-]?[0-9]+)? */
@@ -414,19 +637,27 @@ final class JsonLineParser implements LineParser {
   private void skipWs() {
     while (pos < end) {
       byte c = line[pos];
-      if (c != ' ' && c != '\t' && c != '\n' && c != '\r') {
-        return;
+      if (c > ' ' || (c != ' ' && c != '\t' && c != '\n' && c != '\r')) {
+        return; // the first test alone settles every printable ASCII byte
       }
       pos++;
     }
   }
 
-  private char peek() {
-    if (pos >= end) {
-      throw STOP;
+  /** Skips whitespace; returns the byte there (pos on it), or stops at the end of the line. */
+  private int next() {
+    byte[] l = line;
+    int e = end;
+    for (int p = pos; p < e; p++) {
+      byte c = l[p];
+      if (c > ' ' || (c != ' ' && c != '\t' && c != '\n' && c != '\r')) {
+        pos = p;
+        return c & 0xFF;
+      }
     }
-    return (char) (line[pos] & 0xFF);
+    throw STOP;
   }
+
 
   private void ensure(int n) {
     if (n > keyBuf.length) {

@@ -13,6 +13,29 @@ interface LineParser {
     default void put(String key, double value, byte[] text, int from, int to) {
       put(key, value);
     }
+
+    /**
+     * A field whose key the parser also names by a small id {@code id} ({@code 0 <=} id {@code <}
+     * {@link KeyCache#MAX_ENTRIES}; for one parser the same id always means the same key), so a
+     * receiver can look its use of the key up in an array. {@code text} is null (and {@code
+     * from}, {@code to} are -1) when the number is not printed as valid JSON.
+     */
+    default void put(int id, String key, double value, byte[] text, int from, int to) {
+      if (text == null) {
+        put(key, value);
+      } else {
+        put(key, value, text, from, to);
+      }
+    }
+
+    /**
+     * Whether the value of key {@code id} is needed now. When false the parser still checks the
+     * number (a malformed one ends the line as ever) but need neither convert it nor call put.
+     * Asked only of a parser that hands out ids.
+     */
+    default boolean wants(int id) {
+      return true;
+    }
   }
 
   /** Parses {@code line}; returns false when the line carries no metric at all. */

@@ -17,7 +17,9 @@ import java.util.regex.Pattern;
  *
  * <p>Design: the format parser hands flat key/value pairs to a callback; the intake keeps only
  * the keys it wants (step, epoch, reported rate, applied revision and the configured series) in
- * a fixed slot array, so a line costs no map and no boxing until a {@link Sample} is made. A line
+ * a fixed slot array, so a line costs no map and no boxing until a {@link Sample} is made; a
+ * parser that names keys by id (JSON) has them resolved to slots once, through an array, and is
+ * told which keys' values nobody needs once their part in "keys seen" is settled. A line
  * without any configured series is counted as ignored (progress bars, warnings, tracebacks) but
  * still updates the reported rate and applied revision, which the steering layer uses to confirm
  * a change. When a line prints no step, the step is the shared axis's latest step (an
@@ -44,6 +46,7 @@ public final class MetricsIntake {
   private static final int RATE = 2;
   private static final int REVISION = 3;
   private static final int FIRST_SERIES = 4;
+  private static final int[] NO_SLOTS = new int[0];
 
   private final ReadPlan plan;
   private final LineParser parser;
@@ -52,10 +55,22 @@ public final class MetricsIntake {
   private final Map<String, int[]> slots = new HashMap<>();
   private final String[] seriesNames;
   private final double[] values;
+  /** Per slot: the line (counted from 1) that last set it; 0 while its key never appeared. */
   private final long[] stamp;
+  /**
+   * By the parser's key id ({@link LineParser.Fields#put(int, String, double, byte[], int, int)}):
+   * the key's slots, found in {@code slots} at its first sighting (null before, empty for a key
+   * nobody wants).
+   */
+  private final int[][] slotsById = new int[KeyCache.MAX_ENTRIES][];
+  /**
+   * By key id: the key's part in keysSeen is settled (it was added, or never can be: the set is
+   * full or its lines are over).
+   */
+  private final boolean[] seenById = new boolean[KeyCache.MAX_ENTRIES];
+  /** By key id: no slots and seenById, so the parser need not convert its value any more. */
+  private final boolean[] unwanted = new boolean[KeyCache.MAX_ENTRIES];
   private final Set<String> keysSeen = new HashSet<>();
-  /** Per slot: its key appeared in some line (cheaper than asking keysSeen on every line). */
-  private final boolean[] slotSeen;
   /** Per slot, for the current line: where its number is printed (valid JSON), or from = -1. */
   private final int[] textFrom;
   private final int[] textTo;
@@ -69,6 +84,16 @@ public final class MetricsIntake {
     @Override
     public void put(String key, double value, byte[] t, int from, int to) {
       take(key, value, t, from, to);
+    }
+
+    @Override
+    public void put(int id, String key, double value, byte[] t, int from, int to) {
+      take(id, key, value, t, from, to);
+    }
+
+    @Override
+    public boolean wants(int id) {
+      return !unwanted[id];
     }
   };
   private long lines;
@@ -90,18 +115,17 @@ public final class MetricsIntake {
    * axis) instead of counting their own; null to count.
    */
   MetricsIntake(ReadPlan plan, LongSupplier sharedStep) {
+    this(plan, sharedStep, parserFor(plan));
+  }
+
+  /** An intake reading with {@code parser} instead of its format's own (tests compare two). */
+  MetricsIntake(ReadPlan plan, LongSupplier sharedStep, LineParser parser) {
     this.plan = Objects.requireNonNull(plan, "plan");
     this.sharedStep = sharedStep;
-    this.parser = switch (plan.format()) {
-      case JSON -> new JsonLineParser();
-      case PAIRS -> new PairsLineParser();
-      case PATTERN -> new PatternLineParser(plan.pattern(), groupNames(plan.pattern()));
-      case CSV -> new CsvLineParser();
-    };
+    this.parser = Objects.requireNonNull(parser, "parser");
     int n = FIRST_SERIES + plan.series().size();
     values = new double[n];
     stamp = new long[n];
-    slotSeen = new boolean[n];
     textFrom = new int[n];
     textTo = new int[n];
     seriesNames = plan.series().keySet().toArray(new String[0]);
@@ -115,6 +139,15 @@ public final class MetricsIntake {
     }
   }
 
+  private static LineParser parserFor(ReadPlan plan) {
+    return switch (plan.format()) {
+      case JSON -> new JsonLineParser();
+      case PAIRS -> new PairsLineParser();
+      case PATTERN -> new PatternLineParser(plan.pattern(), groupNames(plan.pattern()));
+      case CSV -> new CsvLineParser();
+    };
+  }
+
   private void want(String key, int slot) {
     if (key == null) {
       return;
@@ -126,21 +159,46 @@ public final class MetricsIntake {
   }
 
   private void take(String key, double v, byte[] t, int from, int to) {
+    seen(key);
+    int[] s = slots.get(key);
+    if (s != null) {
+      fill(s, v, t, from, to);
+    }
+  }
+
+  /** Like {@link #take(String, double, byte[], int, int)}, the slots found by the key's id. */
+  private void take(int id, String key, double v, byte[] t, int from, int to) {
+    int[] s = slotsById[id];
+    if (s == null) {
+      s = slots.getOrDefault(key, NO_SLOTS);
+      slotsById[id] = s;
+    }
+    if (!seenById[id]) {
+      seen(key);
+      seenById[id] = true; // added now, or it never will be: lines only grow, the set never shrinks
+    }
+    if (s.length > 0) {
+      fill(s, v, t, from, to);
+    } else {
+      unwanted[id] = true;
+    }
+  }
+
+  private void seen(String key) {
     if (lines <= KEYS_SEEN_LINES && keysSeen.size() < KEYS_SEEN_MAX) {
       keysSeen.add(key); // for the warning's "keys seen", which is given after 1000 lines
     }
-    int[] s = slots.get(key);
-    if (s != null) {
-      for (int slot : s) {
-        values[slot] = v;
-        stamp[slot] = lines;
-        slotSeen[slot] = true;
-        textFrom[slot] = from;
-        textTo[slot] = to;
-      }
-      if (t != null) {
-        text = t;
-      }
+  }
+
+  private void fill(int[] s, double v, byte[] t, int from, int to) {
+    for (int slot : s) {
+      values[slot] = v;
+      stamp[slot] = lines;
+      textFrom[slot] = from;
+      textTo[slot] = to;
+    }
+    if (t != null) {
+      text = t;
     }
   }
 
@@ -348,7 +406,7 @@ public final class MetricsIntake {
     List<String> out = new ArrayList<>();
     int i = FIRST_SERIES;
     for (Map.Entry<String, String> e : plan.series().entrySet()) {
-      if (!slotSeen[i++]) {
+      if (stamp[i++] == 0) { // never stamped: its key appeared in no line (lines count from 1)
         out.add(e.getKey() + " (key '" + e.getValue() + "')");
       }
     }

@@ -57,7 +57,10 @@ public record ReadPlan(Source source, Path file, Format format, Pattern pattern,
     if (lineLimit < 16) {
       throw new IllegalArgumentException("line limit must be at least 16 chars, was " + lineLimit);
     }
-    series = Collections.unmodifiableMap(new LinkedHashMap<>(series));
+    Map<String, String> named = new LinkedHashMap<>();
+    // interned, so the samples' lookups by the usual names ("train") match on identity first
+    series.forEach((n, k) -> named.put(n == null ? null : n.intern(), k));
+    series = Collections.unmodifiableMap(named);
     also = also == null ? List.of() : List.copyOf(also);
     Map<String, String> owner = new LinkedHashMap<>();
     series.keySet().forEach(n -> owner.put(n, "the main source"));

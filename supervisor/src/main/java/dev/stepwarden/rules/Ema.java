@@ -15,7 +15,14 @@ package dev.stepwarden.rules;
  */
 final class Ema {
   private final double beta;
+  /** 1 - b, the gain's numerator. */
+  private final double oneMinusBeta;
   private double power = 1;
+  /**
+   * 1 - b^t has rounded to exactly 1: it stays 1 as b^t only shrinks, so the gain is 1 - b from
+   * now on (the same double the division gave) and b^t need not be tracked further.
+   */
+  private boolean settled;
   private double value = Double.NaN;
   private long count;
 
@@ -25,13 +32,21 @@ final class Ema {
       throw new IllegalArgumentException("EMA beta must be in [0, 1), got " + beta);
     }
     this.beta = beta;
+    this.oneMinusBeta = 1 - beta;
   }
 
   /** Adds x_t; returns mhat_t. */
   double offer(double x) {
-    power *= beta;
     count++;
-    double gain = (1 - beta) / (1 - power);
+    double gain;
+    if (settled) {
+      gain = oneMinusBeta;
+    } else {
+      power *= beta;
+      double denominator = 1 - power;
+      gain = oneMinusBeta / denominator;
+      settled = denominator == 1.0;
+    }
     value = count == 1 ? x : value + gain * (x - value);
     return value;
   }
@@ -51,6 +66,7 @@ final class Ema {
 
   void reset() {
     power = 1;
+    settled = false;
     value = Double.NaN;
     count = 0;
   }

@@ -39,7 +39,7 @@ public final class GuardEngine {
   static final String UNDO_RAISE = "(undo raise)";
 
   private final GuardFile file;
-  private final List<Armed> armed = new ArrayList<>();
+  private final Armed[] armed;
   /** Watches the training series so a rewind can go back to before the trouble began. */
   private final OnsetLocator onset = new OnsetLocator(OnsetLocator.DEFAULT_WINDOW,
       OnsetLocator.DEFAULT_ALLOWANCE, OnsetLocator.DEFAULT_THRESHOLD);
@@ -54,9 +54,11 @@ public final class GuardEngine {
   public GuardEngine(GuardFile file) {
     this.file = file;
     this.rate = file.run().learningRate();
+    List<Armed> list = new ArrayList<>();
     for (Guard g : file.guards()) {
-      armed.add(new Armed(g, Detectors.create(g.when())));
+      list.add(new Armed(g, Detectors.create(g.when())));
     }
+    this.armed = list.toArray(new Armed[0]);
   }
 
   /** The rate now in force (as decided; confirmation is the steering layer's business). */
@@ -124,13 +126,13 @@ public final class GuardEngine {
     }
     Decision decision = null;
     for (Armed a : armed) {
-      Double value = sample.value(a.guard.when().series());
+      Double value = sample.value(a.series);
       if (value == null) {
         continue;
       }
       a.evaluations++;
       if (train != null && a.detector instanceof OverfitDetector o
-          && !a.guard.when().series().equals("train")) {
+          && !a.series.equals("train")) {
         o.offerTrain(sample.step(), train);
       }
       // Every detector sees every point, even while resting, so its window stays current.
@@ -241,8 +243,8 @@ public final class GuardEngine {
     if (d.guard().equals(UNDO_RAISE)) {
       probation = null;
     } else if (d.ending() == Ending.CONTINUE && rate > before && !d.rewinds()) {
-      Armed by = armed.stream().filter(a -> a.guard.name().equals(d.guard())).findFirst()
-          .orElseThrow();
+      Armed by = java.util.Arrays.stream(armed).filter(a -> a.guard.name().equals(d.guard()))
+          .findFirst().orElseThrow();
       int window = by.guard.when().params().get("over") instanceof Number n ? n.intValue() : 8;
       probation = new Probation(by.guard.when().series(), window, before, d);
     } else {
@@ -303,12 +305,16 @@ public final class GuardEngine {
 
   private static final class Armed {
     final Guard guard;
+    /** The watched series, interned like the samples' names so a lookup matches on identity. */
+    final String series;
     final Detector detector;
     long evaluations;
     long restUntil;
 
     Armed(Guard guard, Detector detector) {
       this.guard = guard;
+      String s = guard.when().series();
+      this.series = s == null ? null : s.intern();
       this.detector = detector;
     }
   }

@@ -22,14 +22,17 @@ final class SampleWindow {
   void add(long step, double value) {
     int capacity = values.length;
     if (size < capacity) {
-      int at = (start + size) % capacity;
+      int at = start + size; // start and size are below capacity: one subtraction wraps it
+      if (at >= capacity) {
+        at -= capacity;
+      }
       steps[at] = step;
       values[at] = value;
       size++;
     } else {
       steps[start] = step;
       values[start] = value;
-      start = (start + 1) % capacity;
+      start = start + 1 == capacity ? 0 : start + 1;
     }
   }
 

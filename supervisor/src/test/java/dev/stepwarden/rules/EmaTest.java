@@ -48,6 +48,28 @@ class EmaTest {
   }
 
   @Test
+  void matchesTheGainRecomputedOnEveryPointBitForBitAcrossResets() {
+    // the gain is taken as 1 - b once 1 - b^t rounds to 1; the plain recurrence is the reference
+    java.util.Random random = new java.util.Random(5);
+    for (double beta : new double[] {0.0, 0.2, 0.5, 0.9, 0.99, 0.999}) {
+      Ema ema = new Ema(beta);
+      for (int run = 0; run < 3; run++) {
+        double power = 1;
+        double value = Double.NaN;
+        for (int t = 1; t <= 20_000; t++) {
+          double x = 1 + random.nextGaussian();
+          power *= beta;
+          double gain = (1 - beta) / (1 - power);
+          value = t == 1 ? x : value + gain * (x - value);
+          assertThat(Double.doubleToRawLongBits(ema.offer(x))).as("beta %s, t %d", beta, t)
+              .isEqualTo(Double.doubleToRawLongBits(value));
+        }
+        ema.reset();
+      }
+    }
+  }
+
+  @Test
   void resetStartsANewAverage() {
     Ema ema = new Ema(0.9);
     ema.offer(100);

@@ -28,6 +28,25 @@ class SampleWindowTest {
   }
 
   @Test
+  void keepsTheLastPointsForEveryCapacityAndCount() {
+    for (int capacity = 1; capacity <= 7; capacity++) {
+      for (int n = 0; n <= 3 * capacity + 1; n++) {
+        SampleWindow w = new SampleWindow(capacity);
+        for (int i = 0; i < n; i++) {
+          w.add(i, i * 0.5);
+        }
+        int kept = Math.min(n, capacity);
+        assertThat(w.size()).isEqualTo(kept);
+        for (int i = 0; i < kept; i++) {
+          assertThat(w.step(i)).as("capacity %d, n %d, i %d", capacity, n, i)
+              .isEqualTo(n - kept + i);
+          assertThat(w.value(i)).isEqualTo((n - kept + i) * 0.5);
+        }
+      }
+    }
+  }
+
+  @Test
   void rejectsEmptyCapacity() {
     assertThatThrownBy(() -> new SampleWindow(0))
         .isInstanceOf(IllegalArgumentException.class)
