@@ -334,7 +334,7 @@ public final class MetricsIntake {
       boolean same = shape == lastShape && lastNames != null && lastNames.length == count
           && seriesNames.length <= 64;
       String[] names = same ? lastNames : new String[count];
-      Double[] vals = new Double[count];
+      double[] vals = new double[count];
       int k = 0;
       for (int i = FIRST_SERIES; i < values.length; i++) {
         if (has(i)) {

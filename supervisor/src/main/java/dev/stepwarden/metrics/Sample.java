@@ -36,6 +36,14 @@ public record Sample(long step, double epoch, long wallMillis, Map<String, Doubl
     return ((SeriesValues) values).name(i);
   }
 
+  /**
+   * The index of {@code series} for {@link #valueAt}, or -1 when the line did not carry it: the
+   * unboxed form of {@link #value}, for paths that run once per metric line.
+   */
+  public int indexOf(String series) {
+    return ((SeriesValues) values).indexOf(series);
+  }
+
   /** The value of series {@code i}, unboxed; for loops that visit every series of a sample. */
   public double valueAt(int i) {
     return ((SeriesValues) values).valueAt(i);

@@ -14,11 +14,14 @@ import java.util.Set;
  */
 final class SeriesValues extends AbstractMap<String, Double> {
   private final String[] names;
-  /** Boxed once here, so the guards' repeated {@link #get} calls box nothing. */
-  private final Double[] values;
+  /**
+   * Unboxed: the hot paths read {@link #valueAt} through {@link Sample#indexOf}; {@link #get}
+   * boxes for the callers that want a map.
+   */
+  private final double[] values;
 
   /** {@code names} is shared between samples of the same shape and never changed. */
-  SeriesValues(String[] names, Double[] values) {
+  SeriesValues(String[] names, double[] values) {
     if (names.length != values.length) {
       throw new IllegalArgumentException("names and values differ in length");
     }
@@ -29,7 +32,7 @@ final class SeriesValues extends AbstractMap<String, Double> {
   /** An immutable copy of {@code map} in its iteration order. */
   static SeriesValues copyOf(Map<String, Double> map) {
     String[] n = new String[map.size()];
-    Double[] v = new Double[n.length];
+    double[] v = new double[n.length];
     int i = 0;
     for (Map.Entry<String, Double> e : map.entrySet()) {
       n[i] = java.util.Objects.requireNonNull(e.getKey(), "series name");
@@ -59,10 +62,10 @@ final class SeriesValues extends AbstractMap<String, Double> {
   @Override
   public Double get(Object key) {
     int i = indexOf(key);
-    return i < 0 ? null : values[i];
+    return i < 0 ? null : Double.valueOf(values[i]);
   }
 
-  private int indexOf(Object key) {
+  int indexOf(Object key) {
     for (int i = 0; i < names.length; i++) {
       if (names[i] == key || names[i].equals(key)) {
         return i;

@@ -114,24 +114,29 @@ public final class GuardEngine {
   /** Feeds one sample; returns the decision when a guard (or the safety net) fired. */
   public Optional<Decision> onSample(Sample sample) {
     samples++;
-    Double train = sample.value("train");
-    if (train != null && Double.isFinite(train)) {
+    // Unboxed lookups: this runs once per metric line.
+    int ti = sample.indexOf("train");
+    double train = ti < 0 ? Double.NaN : sample.valueAt(ti);
+    if (ti >= 0 && Double.isFinite(train)) {
       onset.add(sample.step(), train);
     }
-    Double v = sample.value("validation");
-    if (v != null && Double.isFinite(v)
-        && (Double.isNaN(bestValidation) || v < bestValidation)) {
-      bestValidation = v;
-      bestValidationStep = sample.step();
+    int vi = sample.indexOf("validation");
+    if (vi >= 0) {
+      double v = sample.valueAt(vi);
+      if (Double.isFinite(v) && (Double.isNaN(bestValidation) || v < bestValidation)) {
+        bestValidation = v;
+        bestValidationStep = sample.step();
+      }
     }
     Decision decision = null;
     for (Armed a : armed) {
-      Double value = sample.value(a.series);
-      if (value == null) {
+      int ai = sample.indexOf(a.series);
+      if (ai < 0) {
         continue;
       }
+      double value = sample.valueAt(ai);
       a.evaluations++;
-      if (train != null && a.detector instanceof OverfitDetector o
+      if (ti >= 0 && a.detector instanceof OverfitDetector o
           && !a.series.equals("train")) {
         o.offerTrain(sample.step(), train);
       }
@@ -150,7 +155,7 @@ public final class GuardEngine {
       decision = probation.offer(sample).orElse(null);
     }
     if (decision == null) {
-      if (train != null && !Double.isFinite(train)) {
+      if (ti >= 0 && !Double.isFinite(train)) {
         Map<String, Object> figures = new LinkedHashMap<>();
         figures.put("value", String.valueOf(train));
         figures.put("step", sample.step());
@@ -275,8 +280,9 @@ public final class GuardEngine {
     }
 
     Optional<Decision> offer(Sample s) {
-      Double v = s.value(series);
-      if (v == null || !Double.isFinite(v)) {
+      int i = s.indexOf(series);
+      double v = i < 0 ? Double.NaN : s.valueAt(i);
+      if (!Double.isFinite(v)) {
         return Optional.empty();
       }
       sum += v;

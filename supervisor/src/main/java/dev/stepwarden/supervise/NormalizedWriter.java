@@ -40,6 +40,14 @@ final class NormalizedWriter implements Closeable {
   private byte[] rateText;
   private long timeMillis;
   private byte[] timeText;
+  /** The last step written and its digits: steps mostly count up by one. */
+  private long lastStep = -1;
+  private final byte[] stepDigits = new byte[20];
+  private int stepFrom = stepDigits.length;
+  /** Recent series names and their keys, matched by identity (the intake reuses its names). */
+  private final String[] recentNames = new String[8];
+  private final byte[][] recentKeys = new byte[8][];
+  private int recentNext;
 
   private NormalizedWriter(OutputStream out) {
     this.out = out;
@@ -56,7 +64,7 @@ final class NormalizedWriter implements Closeable {
    */
   void write(Sample s, double rate, MetricsSources sources, int source) throws IOException {
     put(STEP);
-    putLong(s.step());
+    putStep(s.step());
     if (!Double.isNaN(s.epoch())) {
       put(EPOCH);
       putDouble(s.epoch());
@@ -77,7 +85,7 @@ final class NormalizedWriter implements Closeable {
     put(rateText);
     for (int i = 0, n = s.size(); i < n; i++) {
       String name = s.name(i);
-      put(keys.computeIfAbsent(name, NormalizedWriter::key));
+      put(keyOf(name));
       double v = s.valueAt(i);
       if (!Double.isFinite(v)) {
         put(Double.isNaN(v) ? NAN : v > 0 ? INF : NEG_INF);
@@ -106,6 +114,49 @@ final class NormalizedWriter implements Closeable {
   private static final byte[] NAN = ascii("\"nan\"");
   private static final byte[] INF = ascii("\"inf\"");
   private static final byte[] NEG_INF = ascii("\"-inf\"");
+
+  private byte[] keyOf(String name) {
+    for (int i = 0; i < recentNames.length; i++) {
+      if (recentNames[i] == name) {
+        return recentKeys[i];
+      }
+    }
+    byte[] key = keys.computeIfAbsent(name, NormalizedWriter::key);
+    recentNames[recentNext] = name;
+    recentKeys[recentNext] = key;
+    recentNext = (recentNext + 1) & 7;
+    return key;
+  }
+
+  /** Writes a step; the next one after the last is made by adding one to its digits. */
+  private void putStep(long step) {
+    if (step >= 0 && step == lastStep + 1 && lastStep >= 0) {
+      int k = stepDigits.length - 1;
+      while (k >= stepFrom && stepDigits[k] == '9') {
+        stepDigits[k--] = '0';
+      }
+      if (k >= stepFrom) {
+        stepDigits[k]++;
+      } else {
+        stepDigits[--stepFrom] = '1'; // 999 + 1: one digit more
+      }
+    } else if (step >= 0) {
+      String t = Long.toString(step);
+      stepFrom = stepDigits.length - t.length();
+      for (int k = 0; k < t.length(); k++) {
+        stepDigits[stepFrom + k] = (byte) t.charAt(k);
+      }
+    } else {
+      lastStep = -1;
+      putLong(step);
+      return;
+    }
+    lastStep = step;
+    int n = stepDigits.length - stepFrom;
+    ensure(n);
+    System.arraycopy(stepDigits, stepFrom, buf, len, n);
+    len += n;
+  }
 
   /** Double.toString's text, without its cost for whole numbers below 10^7 (epochs). */
   private void putDouble(double v) {

@@ -745,13 +745,13 @@ public final class Supervisor {
     }
     lastMetricMillis = now;
     currentStep = s.step();
-    Double t = s.value("train");
-    if (t != null) {
-      lastTrain = t;
+    int ti = s.indexOf("train");
+    if (ti >= 0) {
+      lastTrain = s.valueAt(ti);
     }
-    Double v = s.value("validation");
-    if (v != null) {
-      lastValidation = v;
+    int vi = s.indexOf("validation");
+    if (vi >= 0) {
+      lastValidation = s.valueAt(vi);
       // Scanning hashes new checkpoints, which can take seconds for big ones: the supervising
       // thread does it, so this pump thread goes on draining the trainer's output.
       requests.offer(SCAN);

@@ -98,6 +98,50 @@ class NormalizedWriterTest {
     }
   }
 
+  @Property(tries = 200)
+  void countedUpStepsAndJumpsAreWrittenAsTheirDecimalDigits(
+      @ForAll @net.jqwik.api.constraints.LongRange(min = 0, max = 2_000_000) long start,
+      @ForAll @net.jqwik.api.constraints.IntRange(min = 1, max = 1200) int run,
+      @ForAll @net.jqwik.api.constraints.LongRange(min = -5, max = Long.MAX_VALUE) long jump)
+      throws Exception {
+    // Runs of consecutive steps cross 9 -> 10, 99 -> 100 and so on; then a jump anywhere
+    // (back, forward, negative) and one more step.
+    long[] steps = new long[run + 2];
+    for (int i = 0; i < run; i++) {
+      steps[i] = start + i;
+    }
+    steps[run] = jump;
+    steps[run + 1] = jump == Long.MAX_VALUE ? 0 : jump + 1;
+    Path f = Files.createTempFile("steps", ".jsonl");
+    try {
+      try (NormalizedWriter w = NormalizedWriter.append(f)) {
+        for (long st : steps) {
+          w.write(sample(st, Double.NaN, "train", 1.0), 0.1, null, 0);
+        }
+      }
+      List<String> lines = Files.readAllLines(f, StandardCharsets.UTF_8);
+      assertThat(lines).hasSize(steps.length);
+      for (int i = 0; i < steps.length; i++) {
+        assertThat(lines.get(i)).startsWith("{\"step\":" + steps[i] + ",");
+      }
+    } finally {
+      Files.deleteIfExists(f);
+    }
+  }
+
+  @Test
+  void stepsCountingPastEveryPowerOfTenKeepTheirDigits() throws Exception {
+    Sample[] s = new Sample[1200];
+    for (int i = 0; i < s.length; i++) {
+      s[i] = sample(i, Double.NaN, "train", 1.0, "validation", 2.0);
+    }
+    List<String> lines = written(s);
+    for (int i = 0; i < s.length; i++) {
+      assertThat(lines.get(i)).isEqualTo("{\"step\":" + i + ",\"t\":1700000000123,\"lr\":0.001,"
+          + "\"train\":1.0,\"validation\":2.0}");
+    }
+  }
+
   @Test
   void aValuePrintedAsValidJsonIsCopiedAsPrinted() throws Exception {
     MetricsSources sources = new MetricsSources(new ReadPlan(ReadPlan.Source.STDOUT, null,
