@@ -29,7 +29,12 @@ final class LinePump implements Runnable, LineSplitter.Sink {
   static final int CHUNK = 64 * 1024; // the Linux default pipe capacity: one read empties a full pipe
   /** Batches read but not yet delivered; one per read, so at most this many 64 KiB reads. */
   static final int QUEUED_BATCHES = 64;
-  private static final int LOG_BUFFER = 128 * 1024;
+  /**
+   * Small reads (a trainer printing line by line) coalesce here; a read at least this big goes
+   * to the log file directly (BufferedOutputStream does so), saving a copy of every flood byte.
+   */
+  private static final int LOG_BUFFER = 32 * 1024;
+  private static final int ECHO_KEEP = 128 * 1024;
   /** Marks the end of the stream in the delivery queue. */
   private static final LineBatch END = new LineBatch();
 
@@ -284,7 +289,7 @@ final class LinePump implements Runnable, LineSplitter.Sink {
       echo.write(echoBuf, 0, echoLen);
       echo.flush();
       echoLen = 0;
-      if (echoBuf.length > LOG_BUFFER) {
+      if (echoBuf.length > ECHO_KEEP) {
         echoBuf = new byte[8192];
       }
     }

@@ -868,8 +868,14 @@ public final class Supervisor {
   }
 
   private Result loop() throws IOException, InterruptedException {
+    // The periodic work (confirmation time-outs, state saves, silence, scans) runs once per tick
+    // however many requests arrive: a trainer reporting validation more often than the tick
+    // must not starve it (each validation value queues a scan).
+    long nextTick = System.nanoTime() + TimeUnit.MILLISECONDS.toNanos(TICK_MILLIS);
     while (true) {
-      Request req = requests.poll(TICK_MILLIS, TimeUnit.MILLISECONDS);
+      long waitNanos = nextTick - System.nanoTime();
+      Request req = waitNanos > 0 ? requests.poll(waitNanos, TimeUnit.NANOSECONDS)
+          : requests.poll();
       if (interrupted) {
         StopResult stop = trainer.stop(); // idempotent: waits for the hook's stop to finish
         return result(RunOutcome.INTERRUPTED, "interrupted by a signal; the trainer was "
@@ -887,7 +893,6 @@ public final class Supervisor {
       }
       if (req instanceof Request.Scan) {
         scanUnlocked(clock.millis());
-        continue;
       }
       TrainerProcess t = trainer;
       OptionalInt exit = t.waitFor(Duration.ZERO);
@@ -904,7 +909,10 @@ public final class Supervisor {
         }
         continue;
       }
-      periodic();
+      if (System.nanoTime() - nextTick >= 0) {
+        periodic();
+        nextTick = System.nanoTime() + TimeUnit.MILLISECONDS.toNanos(TICK_MILLIS);
+      }
     }
   }
 

@@ -76,6 +76,25 @@ class SteeringTest {
   }
 
   @Test
+  void aTrainerReportingValidationFasterThanTheTickStillGetsItsConfirmationTimeOut()
+      throws Exception {
+    Night n = new Night(tmp);
+    // Validation on every step, every 20 ms: each value queues a checkpoint scan, ten times per
+    // 200 ms tick. The periodic work (here: the confirmation time-out) must still run.
+    Supervisor.Result r = n.run(n.rules("--steps, \"150\", --eval-every, \"1\", --delay,"
+        + " \"0.02\", --numbered", "steer: { by: control-file, confirm_within: 1s,"
+        + " unconfirmed: log }\ncheckpoints: { watch: ckpt/step-*.json, keep: 3 }\n"
+        + PLATEAU_GUARD));
+
+    assertThat(r.outcome()).isEqualTo(RunOutcome.FINISHED);
+    List<Map<String, Object>> audit = n.audit();
+    assertThat(ofType(audit, "not-confirmed")).hasSize(1);
+    assertThat(ofType(audit, "not-confirmed").get(0).get("fallback")).isEqualTo("none");
+    assertThat(num(ofType(audit, "not-confirmed").get(0).get("waited_ms"))).isLessThan(2000);
+    assertThat(ofType(audit, "launch")).hasSize(1);
+  }
+
+  @Test
   void trainerThatOnlyReadsLrAndResumeFlagsIsSteeredByRestartAndItsStepsContinue()
       throws Exception {
     Night n = new Night(tmp);
