@@ -87,27 +87,39 @@ for i in range(n):
 sys.stdout.flush()
 print(f"trainer_seconds={time.perf_counter() - t:.3f}", file=sys.stderr)
 PY
-M=$((N / 5))
 # Three interleaved rounds (the figure is noisy on a shared machine): the trainer to /dev/null,
-# into a plain pipe read by cat (what any reader of the pipe costs it), and under stepwarden.
+# into a plain pipe read by cat (what any reader of the pipe costs it), and under stepwarden;
+# once block-buffered (Python's default for a pipe) and once unbuffered (PYTHONUNBUFFERED=1, as
+# many launch scripts set it: then every line is its own write system call).
 : > "$W/rounds.txt"
-for round in 1 2 3; do
-  A=$(python3 "$W/trainer.py" "$M" 2>&1 >/dev/null | sed 's/.*=//')
-  P=$( { python3 "$W/trainer.py" "$M" | cat >/dev/null; } 2>&1 | sed 's/.*=//')
-  java $RUNJVM -jar "$JAR" run --quiet --rules "$W/flood.yaml" --run-dir "$W/runs2" -- python3 \
-    "$W/trainer.py" "$M" >/dev/null 2>"$W/run2.err" || true
-  # --run-dir names the run directory itself; the trainer's stderr log is in it
-  B=$(grep -o 'trainer_seconds=[0-9.]*' "$W/runs2/trainer.stderr.log" 2>/dev/null | sed 's/.*=//')
-  rm -rf "$W/runs2"
-  echo "round $round, trainer flooding $M lines: /dev/null ${A}s, | cat ${P}s, stepwarden ${B:-?}s"
-  echo "$A $P ${B:-nan}" >> "$W/rounds.txt"
+# Buffered: LINES lines (about 12 s of trainer: the supervisor's one-off start-up and JIT work
+# weigh as little as in a real run; with LINES/5 they add about 15 %). Unbuffered: LINES/5.
+for mode in buffered unbuffered; do
+  if [ "$mode" = buffered ]; then
+    PYENV="env -u PYTHONUNBUFFERED"; M=$N
+  else
+    PYENV="env PYTHONUNBUFFERED=1"; M=$((N / 5))
+  fi
+  for round in 1 2 3; do
+    A=$($PYENV python3 "$W/trainer.py" "$M" 2>&1 >/dev/null | sed 's/.*=//')
+    P=$( { $PYENV python3 "$W/trainer.py" "$M" | cat >/dev/null; } 2>&1 | sed 's/.*=//')
+    java $RUNJVM -jar "$JAR" run --quiet --rules "$W/flood.yaml" --run-dir "$W/runs2" -- $PYENV \
+      python3 "$W/trainer.py" "$M" >/dev/null 2>"$W/run2.err" || true
+    # --run-dir names the run directory itself; the trainer's stderr log is in it
+    B=$(grep -o 'trainer_seconds=[0-9.]*' "$W/runs2/trainer.stderr.log" 2>/dev/null | sed 's/.*=//')
+    rm -rf "$W/runs2"
+    echo "$mode round $round, trainer flooding $M lines: /dev/null ${A}s, | cat ${P}s," \
+      "stepwarden ${B:-?}s"
+    echo "$mode $A $P ${B:-nan}" >> "$W/rounds.txt"
+  done
 done
 python3 - "$W/rounds.txt" <<'PY'
 import statistics, sys
-rows = [list(map(float, l.split())) for l in open(sys.argv[1]) if l.strip()]
-a, p, b = (statistics.median(c) for c in zip(*rows))
-print(f"trainer slowdown (medians): {b/a-1:+.1%} against /dev/null, {b/p-1:+.1%} against | cat "
-      f"(the pipe alone: {p/a-1:+.1%})")
+rows = [l.split() for l in open(sys.argv[1]) if l.strip()]
+for mode in ("buffered", "unbuffered"):
+    a, p, b = (statistics.median(float(r[k]) for r in rows if r[0] == mode) for k in (1, 2, 3))
+    print(f"trainer slowdown, {mode} (medians): {b/a-1:+.1%} against /dev/null, {b/p-1:+.1%} "
+          f"against | cat (the pipe alone: {p/a-1:+.1%})")
 PY
 
 /usr/bin/time -o "$W/time3.txt" -f "%e %M" java $RUNJVM -jar "$JAR" run --quiet --rules "$W/flood.yaml" \
