@@ -1,6 +1,7 @@
 package dev.stepwarden.cli;
 
 import java.io.PrintWriter;
+import java.util.List;
 import picocli.CommandLine;
 import picocli.CommandLine.Command;
 
@@ -13,11 +14,14 @@ import picocli.CommandLine.Command;
     description = "Supervises an overnight training run: follows its metrics, applies the guards"
         + " of a YAML file (lower or raise the learning rate, rewind to a checkpoint, restart,"
         + " stop early) and keeps an audit log of every decision.",
-    subcommands = {RunCommand.class, CheckCommand.class, SchemaCommand.class, DemoCommand.class,
-        ReportCommand.class, ReplayCommand.class, QueueCommand.class, ServeCommand.class,
-        HelperCommand.class, CompletionCommand.class, CommandLine.HelpCommand.class},
     footer = {"", ExitCodes.TABLE})
 public final class Main implements Runnable {
+  /** The subcommands, in the order the root's help lists them. */
+  private static final List<Class<?>> SUBCOMMANDS = List.of(RunCommand.class,
+      CheckCommand.class, SchemaCommand.class, DemoCommand.class, ReportCommand.class,
+      ReplayCommand.class, QueueCommand.class, ServeCommand.class, HelperCommand.class,
+      CompletionCommand.class, CommandLine.HelpCommand.class);
+
   @CommandLine.Spec
   CommandLine.Model.CommandSpec spec;
 
@@ -33,14 +37,38 @@ public final class Main implements Runnable {
 
   /** Runs the command line and returns the exit code (tests call this in-process). */
   public static int execute(String[] args, PrintWriter out, PrintWriter err) {
-    CommandLine cl = commandLine();
+    CommandLine cl = commandLine(args.length == 0 ? null : args[0]);
     cl.setOut(out);
     cl.setErr(err);
     return cl.execute(args);
   }
 
+  /** The whole command tree (help, completion, tests). */
   static CommandLine commandLine() {
+    return commandLine(null);
+  }
+
+  /**
+   * The root with only the subcommand {@code first} names, when it names one: picocli builds
+   * each subcommand's model by reflection, and building all of them was a third of a run's
+   * start-up. Anything else ({@code help}, {@code --help}, a typo, {@code completion}) gets the
+   * whole tree, so help, suggestions and completion see every subcommand.
+   */
+  static CommandLine commandLine(String first) {
     CommandLine cl = new CommandLine(new Main());
+    Class<?> only = null;
+    for (Class<?> c : SUBCOMMANDS) {
+      if (c != CompletionCommand.class && c != CommandLine.HelpCommand.class
+          && c.getAnnotation(Command.class).name().equals(first)) {
+        only = c;
+      }
+    }
+    for (Class<?> c : SUBCOMMANDS) {
+      if (only == null || c == only) {
+        cl.addSubcommand(c);
+      }
+    }
+    withHelpOptions(cl);
     cl.setExitCodeExceptionMapper(t -> ExitCodes.INTERNAL);
     cl.setParameterExceptionHandler((ex, args) -> {
       CommandLine c = ex.getCommandLine();
@@ -54,6 +82,19 @@ public final class Main implements Runnable {
       return ExitCodes.INTERNAL;
     });
     return cl;
+  }
+
+  /** Every subcommand takes -h/--help and -V/--version, as the root does. */
+  private static void withHelpOptions(CommandLine cl) {
+    for (CommandLine sub : cl.getSubcommands().values()) {
+      if (!(sub.getCommand() instanceof CommandLine.HelpCommand)) {
+        sub.getCommandSpec().mixinStandardHelpOptions(true);
+        if (sub.getCommandSpec().version().length == 0) {
+          sub.getCommandSpec().versionProvider(new Version());
+        }
+      }
+      withHelpOptions(sub);
+    }
   }
 
   static final class Version implements CommandLine.IVersionProvider {

@@ -66,6 +66,29 @@ class CliTest {
   }
 
   @Test
+  void everySubcommandAnswersHelpWithItsOwnUsage() {
+    for (String name : new String[] {"run", "check", "schema", "demo", "report", "replay",
+        "queue", "serve", "helper", "completion"}) {
+      Out r = run(name, "--help");
+      assertThat(r.code()).as(name + ": " + r.err()).isZero();
+      assertThat(r.out()).as(name).startsWith("Usage: stepwarden " + name);
+    }
+    Out nested = run("queue", "add", "--help");
+    assertThat(nested.code()).as(nested.err()).isZero();
+    assertThat(nested.out()).startsWith("Usage: stepwarden queue add");
+    assertThat(run("help", "run").out()).startsWith("Usage: stepwarden run");
+  }
+
+  @Test
+  void aRunBuildsOnlyItsOwnSubcommandButHelpAndCompletionSeeThemAll() {
+    assertThat(Main.commandLine("run").getSubcommands()).containsOnlyKeys("run");
+    assertThat(Main.commandLine("--help").getSubcommands()).containsKeys("run", "check",
+        "report", "queue", "completion", "help");
+    assertThat(Main.commandLine("completion").getSubcommands()).hasSizeGreaterThan(5);
+    assertThat(run("completion").out()).contains("report").contains("replay");
+  }
+
+  @Test
   void completionPrintsABashScript() {
     Out r = run("completion");
     assertThat(r.code()).isZero();
