@@ -43,8 +43,11 @@ public final class Main implements Runnable {
     return cl.execute(args);
   }
 
-  /** The whole command tree (help, completion, tests). */
-  static CommandLine commandLine() {
+  /**
+   * The whole command tree (help, completion, tests). Use this, not {@code new
+   * CommandLine(new Main())}: the subcommands are added here, not by the annotation.
+   */
+  public static CommandLine commandLine() {
     return commandLine(null);
   }
 

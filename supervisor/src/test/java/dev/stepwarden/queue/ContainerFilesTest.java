@@ -24,7 +24,7 @@ class ContainerFilesTest {
 
   /** Parses a command line with picocli (without running it) and returns the subcommand path. */
   static List<String> parse(List<String> args) {
-    var cl = new picocli.CommandLine(new Main());
+    var cl = Main.commandLine();
     var parsed = cl.parseArgs(args.toArray(String[]::new));
     List<String> names = new ArrayList<>();
     for (var p = parsed; p != null; p = p.subcommand()) {
