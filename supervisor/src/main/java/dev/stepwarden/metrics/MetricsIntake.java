@@ -206,10 +206,14 @@ public final class MetricsIntake {
     return stamp[slot] == lines;
   }
 
-  /** Continues the step axis across a restart: inferred steps resume after {@code step}. */
+  /**
+   * Continues the step axis after a restart from a checkpoint taken at {@code step}: inferred
+   * steps go on from there, backwards too after a rewind, just as a trainer that prints its step
+   * prints the checkpoint's step + 1 next.
+   */
   public void continueAfter(long step) {
-    inferredStep = Math.max(inferredStep, step);
-    lastStep = Math.max(lastStep, step);
+    inferredStep = step;
+    lastStep = step;
   }
 
   /** Like {@link #accept(String, long)} for a line the reader cut at the line limit. */

@@ -41,6 +41,10 @@ class MetricsIntakeTest {
     in.continueAfter(100);
     assertThat(in.accept("{\"loss\": 1}", 0).sample().step()).isEqualTo(101);
     assertThat(in.lastStep()).isEqualTo(101);
+    // A rewind to a checkpoint seen at step 50: the counted axis goes back with the trainer.
+    in.continueAfter(50);
+    assertThat(in.lastStep()).isEqualTo(50);
+    assertThat(in.accept("{\"loss\": 1}", 0).sample().step()).isEqualTo(51);
   }
 
   @Test
