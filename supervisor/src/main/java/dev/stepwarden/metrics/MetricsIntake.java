@@ -275,30 +275,24 @@ public final class MetricsIntake {
 
   /**
    * Appends the value of {@code series} in the line just accepted as the trainer printed it,
-   * when that text is a valid JSON number; returns false (appending nothing) otherwise. Lets
-   * the normalized file carry numbers without formatting doubles again (the text parses back
-   * to the very same double).
+   * when that text is a valid JSON number; returns false (appending nothing) otherwise. The
+   * readable form of {@link #printedLength} and {@link #copyPrinted}, for tests.
    */
-  public boolean appendPrinted(String series, StringBuilder out) {
-    for (int i = 0; i < seriesNames.length; i++) {
-      if (seriesNames[i].equals(series)) {
-        int slot = FIRST_SERIES + i;
-        if (!has(slot) || textFrom[slot] < 0 || text == null) {
-          return false;
-        }
-        for (int k = textFrom[slot]; k < textTo[slot]; k++) {
-          out.append((char) text[k]);
-        }
-        return true;
-      }
+  boolean appendPrinted(String series, StringBuilder out) {
+    int slot = printedSlot(series);
+    if (slot < 0) {
+      return false;
     }
-    return false;
+    for (int k = textFrom[slot]; k < textTo[slot]; k++) {
+      out.append((char) text[k]);
+    }
+    return true;
   }
 
   /**
    * The length of {@code series}'s number as printed in the line just accepted, when that text
-   * is a valid JSON number; -1 otherwise. With {@link #copyPrinted} the byte-level form of
-   * {@link #appendPrinted}.
+   * is a valid JSON number; -1 otherwise. With {@link #copyPrinted} it lets the normalized file
+   * carry numbers without formatting doubles again (the text parses back to the same double).
    */
   public int printedLength(String series) {
     int slot = printedSlot(series);

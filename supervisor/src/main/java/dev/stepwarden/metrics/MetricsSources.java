@@ -71,11 +71,6 @@ public final class MetricsSources implements AutoCloseable {
     return intakes.get(source).accept(b, off, len, wallMillis, cut);
   }
 
-  /** See {@link MetricsIntake#appendPrinted}: the number text of the line just accepted. */
-  public boolean appendPrinted(int source, String series, StringBuilder out) {
-    return intakes.get(source).appendPrinted(series, out);
-  }
-
   /** See {@link MetricsIntake#printedLength}. */
   public int printedLength(int source, String series) {
     return intakes.get(source).printedLength(series);
