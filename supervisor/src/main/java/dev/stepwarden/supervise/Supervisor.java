@@ -659,14 +659,7 @@ public final class Supervisor {
         return; // a stopped trainer's last words: its decisions are no longer ours to make
       }
       if (probing != null) {
-        double next = probing.accept(stderr, line, clock.millis());
-        if (Double.isFinite(next)) {
-          try {
-            control.publish(next, "(probe)", probing.steps());
-          } catch (IOException e) {
-            probing.finish();
-          }
-        }
+        probeLine(stderr, line);
         return;
       }
       if (stderr) {
@@ -683,9 +676,29 @@ public final class Supervisor {
     }
   }
 
+  /** Feeds the rate probe one line; moves its ramp on through the control file. Under the lock. */
+  private void probeLine(boolean stderr, String line) {
+    double next = probing.accept(stderr, line, clock.millis());
+    if (Double.isFinite(next)) {
+      try {
+        control.publish(next, "(probe)", probing.steps());
+      } catch (IOException e) {
+        probing.finish();
+      }
+    }
+  }
+
   /** The lines of one pump read under one lock acquisition, parsed from the pump's bytes. */
   private void onLines(int gen, boolean stderr, LineBatch lines) {
     synchronized (lock) {
+      if (probing != null) {
+        // The probe launch's lines are the probe's, not the guards' (the pump delivers batches
+        // only, so this is the probe's real input).
+        for (int k = 0; k < lines.size() && gen == generation && !interrupted; k++) {
+          probeLine(stderr, lines.text(k));
+        }
+        return;
+      }
       int[] sources = stderr ? stderrSources : stdoutSources;
       try {
         // One wall time per read: its lines arrived together (and a clock read per line was a

@@ -80,6 +80,52 @@ class SupervisedNightEndToEndTest {
   }
 
   @Test
+  void theRateProbeRampsTheTrainerAndTheRunStartsAtTheRateItPicked(@TempDir Path tmp)
+      throws Exception {
+    Path rules = tmp.resolve("probe.yaml");
+    Files.writeString(rules, String.join("\n",
+        "run: { name: probe-e2e, learning_rate: 0.01, stop_grace: 5s }",
+        "read: { format: json, step: step, series: { train: loss, validation: val_loss } }",
+        "steer: { by: control-file, confirm_within: 20s }",
+        "checkpoints: { watch: ckpt/step-*.ckpt }",
+        "probe: { from: 1.0e-3, to: 10, steps: 33, hold: 4, pick: 0.5 }",
+        "guards:",
+        "  - name: flat-validation",
+        "    when: { flattens: { series: validation, over: 3, gain_below: 1% } }",
+        "    do: { scale: 0.5 }",
+        "limits: { learning_rate: { min: 0.001, max: 3.0 }, silence: 1m }",
+        ""));
+    Path runDir = tmp.resolve("run");
+    Path out = tmp.resolve("out.txt");
+    Process p = ChildJvm.stepwarden(tmp, out, "run", "--rules", rules.toString(), "--run-dir",
+        runDir.toString(), "--quiet", "--", ChildJvm.java(), "-XX:+UseSerialGC", "-cp",
+        System.getProperty("java.class.path"), "dev.stepwarden.demo.DemoTrainer", "--lr",
+        "{learning_rate}", "--resume", "{resume_from}", "--epochs", "4", "--checkpoint-dir",
+        "ckpt").start();
+    assertThat(p.waitFor(120, TimeUnit.SECONDS)).as("run finished").isTrue();
+    assertThat(p.exitValue()).as(Files.readString(out)).isIn(0, 3);
+
+    List<Map<String, Object>> records = AuditReader.read(runDir.resolve("audit.jsonl")).records();
+    List<Map<String, Object>> launches = records.stream()
+        .filter(r -> "launch".equals(r.get("type"))).toList();
+    Map<String, Object> probe = records.stream().filter(r -> "probe".equals(r.get("type")))
+        .findFirst().orElseThrow();
+    // The probe saw the ramp's losses (it is fed the probe launch's lines, not the guards).
+    assertThat(probe.get("found")).as(probe.toString()).isEqualTo(true);
+    assertThat(((Number) probe.get("steps")).intValue()).isGreaterThan(33 * 4 / 2);
+    double picked = ((Number) probe.get("learning_rate")).doubleValue();
+    assertThat(picked).isBetween(0.02, 3.0);
+    assertThat(launches).hasSizeGreaterThanOrEqualTo(2);
+    assertThat(launches.get(0).get("reason")).isEqualTo("rate probe");
+    assertThat(launches.get(1).get("reason")).isEqualTo("start");
+    assertThat(((Number) launches.get(1).get("learning_rate")).doubleValue()).isEqualTo(picked);
+    // No guard decided on the probe launch's lines.
+    long realStart = ((Number) launches.get(1).get("seq")).longValue();
+    assertThat(records).filteredOn(r -> "decision".equals(r.get("type")))
+        .allSatisfy(d -> assertThat(((Number) d.get("seq")).longValue()).isGreaterThan(realStart));
+  }
+
+  @Test
   void nonFiniteTrainingLossGivesUpWithExitFour(@TempDir Path tmp) throws Exception {
     Path rules = tmp.resolve("nan.yaml");
     Files.writeString(rules, "run: { learning_rate: 0.1 }\n"
