@@ -14,9 +14,8 @@ import java.util.List;
  * launch while the rate is ramped through the control file, and says when to publish the next
  * rate and when the test is over. The trainer does not wait for us, so each loss is booked at the
  * rate the trainer reports having used (or, if it reports none, the rate last published), and a
- * rate is held until {@code hold} samples were seen at it. Reads the stdout and stderr sources of
- * the read plan only (followed files are not read during the probe). Used under the supervisor's
- * lock.
+ * rate is held until {@code hold} samples were seen at it. Reads every source of the read plan:
+ * stdout, stderr and followed files. Used under the supervisor's lock.
  */
 final class RateProbe {
   private final GuardFile.Probe probe;
@@ -54,38 +53,51 @@ final class RateProbe {
     done = true;
   }
 
-  /** Takes one line; returns the next rate to publish, or NaN when nothing changes. */
+  /** Takes one stdout or stderr line; returns the next rate to publish, or NaN. */
   double accept(boolean stderr, String line, long now) {
+    double next = Double.NaN;
+    for (int i : sources.sourcesOf(stderr ? ReadPlan.Source.STDERR : ReadPlan.Source.STDOUT)) {
+      double n = acceptSource(i, line, now);
+      if (!Double.isNaN(n)) {
+        next = n;
+      }
+    }
+    return next;
+  }
+
+  /**
+   * Takes one line of the read plan's source {@code source} (the index {@link MetricsSources}
+   * gives it, a followed file included); returns the next rate to publish, or NaN.
+   */
+  double acceptSource(int source, String line, long now) {
     if (done) {
       return Double.NaN;
     }
-    for (int i : sources.sourcesOf(stderr ? ReadPlan.Source.STDERR : ReadPlan.Source.STDOUT)) {
-      MetricsIntake.Reading r = sources.accept(i, line, now, false);
-      Sample s = r == null ? null : r.sample();
-      Double loss = s == null ? null : s.value("train");
-      if (loss == null) {
-        continue;
-      }
-      steps++;
-      int at = levelOf(r.hasRate() ? r.reportedRate() : ramp[level]);
-      if (!Double.isFinite(loss)) {
-        done = true; // the rate at this level is past the usable range
-        sum[at] = Double.NaN;
-        count[at]++;
+    MetricsIntake.Reading r = sources.accept(source, line, now, false);
+    Sample s = r == null ? null : r.sample();
+    Double loss = s == null ? null : s.value("train");
+    if (loss == null) {
+      return Double.NaN;
+    }
+    steps++;
+    int at = levelOf(r.hasRate() ? r.reportedRate() : ramp[level]);
+    if (!Double.isFinite(loss)) {
+      done = true; // the rate at this level is past the usable range
+      sum[at] = Double.NaN;
+      count[at]++;
+      return Double.NaN;
+    }
+    sum[at] += loss;
+    count[at]++;
+    if (at == level && count[at] >= probe.hold()) {
+      double mean = sum[at] / count[at];
+      lowestMean = Math.min(lowestMean, mean);
+      if (mean > RangeTest.RUNAWAY * lowestMean || level == ramp.length - 1) {
+        done = true;
         return Double.NaN;
       }
-      sum[at] += loss;
-      count[at]++;
-      if (at == level && count[at] >= probe.hold()) {
-        double mean = sum[at] / count[at];
-        lowestMean = Math.min(lowestMean, mean);
-        if (mean > RangeTest.RUNAWAY * lowestMean || level == ramp.length - 1) {
-          done = true;
-          return Double.NaN;
-        }
-        level++;
-        return ramp[level];
-      }
+      level++;
+      return ramp[level];
     }
     return Double.NaN;
   }

@@ -421,6 +421,10 @@ public final class Supervisor {
         if (interrupted || finished) {
           return;
         }
+        if (probing != null) {
+          publishProbeRate(probing.acceptSource(source, line, clock.millis()));
+          return; // the probe launch's lines are the probe's, not the guards'
+        }
         try {
           handle(source, line, cut);
         } catch (IOException e) {
@@ -678,7 +682,10 @@ public final class Supervisor {
 
   /** Feeds the rate probe one line; moves its ramp on through the control file. Under the lock. */
   private void probeLine(boolean stderr, String line) {
-    double next = probing.accept(stderr, line, clock.millis());
+    publishProbeRate(probing.accept(stderr, line, clock.millis()));
+  }
+
+  private void publishProbeRate(double next) {
     if (Double.isFinite(next)) {
       try {
         control.publish(next, "(probe)", probing.steps());

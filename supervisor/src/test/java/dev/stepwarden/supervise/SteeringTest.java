@@ -98,8 +98,11 @@ class SteeringTest {
   void trainerThatOnlyReadsLrAndResumeFlagsIsSteeredByRestartAndItsStepsContinue()
       throws Exception {
     Night n = new Night(tmp);
+    // 40 ms a step: the plateau decision (step 40) comes well after the first checkpoints have
+    // settled (500 ms unchanged), so the restart has a vault copy to resume from. At 20 ms a
+    // step the decision raced the settling and the restart could start from scratch.
     Supervisor.Result r = n.run(n.rules("--steps, \"140\", --eval-every, \"10\", --delay,"
-        + " \"0.02\", --numbered", "steer: { by: restart }\n"
+        + " \"0.04\", --numbered", "steer: { by: restart }\n"
         + "checkpoints: { watch: ckpt/step-*.json, keep: 20 }\n" + PLATEAU_GUARD));
 
     assertThat(r.outcome()).isEqualTo(RunOutcome.FINISHED);
