@@ -616,11 +616,6 @@ public final class Supervisor {
       public void onLines(TrainerStream stream, LineBatch lines) {
         Supervisor.this.onLines(gen, stream == TrainerStream.STDERR, lines);
       }
-
-      @Override
-      public void onLine(TrainerStream stream, String line) {
-        Supervisor.this.onLine(gen, stream == TrainerStream.STDERR, line);
-      }
     });
     trainer.whenDrained(() -> requests.offer(WAKE));
     Map<String, Object> f = new LinkedHashMap<>();
@@ -655,29 +650,6 @@ public final class Supervisor {
 
   static String formatRate(double rate) {
     return Double.toString(rate);
-  }
-
-  private void onLine(int gen, boolean stderr, String line) {
-    synchronized (lock) {
-      if (gen != generation || interrupted) {
-        return; // a stopped trainer's last words: its decisions are no longer ours to make
-      }
-      if (probing != null) {
-        probeLine(stderr, line);
-        return;
-      }
-      if (stderr) {
-        rememberStderr(line);
-      }
-      try {
-        for (int i : stderr ? stderrSources : stdoutSources) {
-          handle(i, line, false);
-        }
-      } catch (IOException e) {
-        requests.add(new Request.End(null));
-        options.console().println("stepwarden: " + e.getMessage());
-      }
-    }
   }
 
   /** Feeds the rate probe one line; moves its ramp on through the control file. Under the lock. */

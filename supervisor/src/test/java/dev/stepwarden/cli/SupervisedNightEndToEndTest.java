@@ -82,19 +82,7 @@ class SupervisedNightEndToEndTest {
   @Test
   void theRateProbeRampsTheTrainerAndTheRunStartsAtTheRateItPicked(@TempDir Path tmp)
       throws Exception {
-    Path rules = tmp.resolve("probe.yaml");
-    Files.writeString(rules, String.join("\n",
-        "run: { name: probe-e2e, learning_rate: 0.01, stop_grace: 5s }",
-        "read: { format: json, step: step, series: { train: loss, validation: val_loss } }",
-        "steer: { by: control-file, confirm_within: 20s }",
-        "checkpoints: { watch: ckpt/step-*.ckpt }",
-        "probe: { from: 1.0e-3, to: 10, steps: 33, hold: 4, pick: 0.5 }",
-        "guards:",
-        "  - name: flat-validation",
-        "    when: { flattens: { series: validation, over: 3, gain_below: 1% } }",
-        "    do: { scale: 0.5 }",
-        "limits: { learning_rate: { min: 0.001, max: 3.0 }, silence: 1m }",
-        ""));
+    Path rules = probeRules(tmp, "format: json", "checkpoints: { watch: ckpt/step-*.ckpt }");
     Path runDir = tmp.resolve("run");
     Path out = tmp.resolve("out.txt");
     Process p = ChildJvm.stepwarden(tmp, out, "run", "--rules", rules.toString(), "--run-dir",
@@ -105,14 +93,40 @@ class SupervisedNightEndToEndTest {
     assertThat(p.waitFor(120, TimeUnit.SECONDS)).as("run finished").isTrue();
     assertThat(p.exitValue()).as(Files.readString(out)).isIn(0, 3);
 
+    Map<String, Object> probe = assertTheProbeStartedTheRun(runDir);
+    assertThat(((Number) probe.get("steps")).intValue()).isGreaterThan(33 * 4 / 2);
+  }
+
+  /** The two probe tests' guard file: {@code read} options and an optional extra line. */
+  private static Path probeRules(Path tmp, String read, String extra) throws Exception {
+    Path rules = tmp.resolve("probe.yaml");
+    Files.writeString(rules, String.join("\n",
+        "run: { name: probe-e2e, learning_rate: 0.01, stop_grace: 5s }",
+        "read: { " + read + ", step: step, series: { train: loss, validation: val_loss } }",
+        "steer: { by: control-file, confirm_within: 20s }",
+        extra,
+        "probe: { from: 1.0e-3, to: 10, steps: 33, hold: 4, pick: 0.5 }",
+        "guards:",
+        "  - name: flat-validation",
+        "    when: { flattens: { series: validation, over: 3, gain_below: 1% } }",
+        "    do: { scale: 0.5 }",
+        "limits: { learning_rate: { min: 0.001, max: 3.0 }, silence: 1m }",
+        ""));
+    return rules;
+  }
+
+  /**
+   * The audit shows a probe that found a range (it was fed the probe launch's lines), a real
+   * launch at the rate it picked, and no guard decision before that launch; returns the probe
+   * record.
+   */
+  private static Map<String, Object> assertTheProbeStartedTheRun(Path runDir) throws Exception {
     List<Map<String, Object>> records = AuditReader.read(runDir.resolve("audit.jsonl")).records();
     List<Map<String, Object>> launches = records.stream()
         .filter(r -> "launch".equals(r.get("type"))).toList();
     Map<String, Object> probe = records.stream().filter(r -> "probe".equals(r.get("type")))
         .findFirst().orElseThrow();
-    // The probe saw the ramp's losses (it is fed the probe launch's lines, not the guards).
     assertThat(probe.get("found")).as(probe.toString()).isEqualTo(true);
-    assertThat(((Number) probe.get("steps")).intValue()).isGreaterThan(33 * 4 / 2);
     double picked = ((Number) probe.get("learning_rate")).doubleValue();
     // Where in the ramp it lands varies (the trainer does not wait for each rate: see the
     // control-quality benchmark); it must be a rate of the ramp within the limits.
@@ -121,27 +135,15 @@ class SupervisedNightEndToEndTest {
     assertThat(launches.get(0).get("reason")).isEqualTo("rate probe");
     assertThat(launches.get(1).get("reason")).isEqualTo("start");
     assertThat(((Number) launches.get(1).get("learning_rate")).doubleValue()).isEqualTo(picked);
-    // No guard decided on the probe launch's lines.
     long realStart = ((Number) launches.get(1).get("seq")).longValue();
     assertThat(records).filteredOn(r -> "decision".equals(r.get("type")))
         .allSatisfy(d -> assertThat(((Number) d.get("seq")).longValue()).isGreaterThan(realStart));
+    return probe;
   }
 
   @Test
   void theRateProbeAlsoReadsAFollowedMetricsFile(@TempDir Path tmp) throws Exception {
-    Path rules = tmp.resolve("probe-file.yaml");
-    Files.writeString(rules, String.join("\n",
-        "run: { name: probe-file, learning_rate: 0.01, stop_grace: 5s }",
-        "read: { file: train.jsonl, format: json, step: step,"
-            + " series: { train: loss, validation: val_loss } }",
-        "steer: { by: control-file, confirm_within: 20s }",
-        "probe: { from: 1.0e-3, to: 10, steps: 33, hold: 4, pick: 0.5 }",
-        "guards:",
-        "  - name: flat-validation",
-        "    when: { flattens: { series: validation, over: 3, gain_below: 1% } }",
-        "    do: { scale: 0.5 }",
-        "limits: { learning_rate: { min: 0.001, max: 3.0 }, silence: 1m }",
-        ""));
+    Path rules = probeRules(tmp, "file: train.jsonl, format: json", "");
     Path runDir = tmp.resolve("run");
     Path out = tmp.resolve("out.txt");
     // The trainer's metric lines go to a file only (its stdout is redirected there).
@@ -154,17 +156,7 @@ class SupervisedNightEndToEndTest {
     assertThat(p.waitFor(120, TimeUnit.SECONDS)).as("run finished").isTrue();
     assertThat(p.exitValue()).as(Files.readString(out)).isIn(0, 3);
 
-    List<Map<String, Object>> records = AuditReader.read(runDir.resolve("audit.jsonl")).records();
-    Map<String, Object> probe = records.stream().filter(r -> "probe".equals(r.get("type")))
-        .findFirst().orElseThrow();
-    assertThat(probe.get("found")).as(probe.toString()).isEqualTo(true);
-    double picked = ((Number) probe.get("learning_rate")).doubleValue();
-    List<Map<String, Object>> launches = records.stream()
-        .filter(r -> "launch".equals(r.get("type"))).toList();
-    assertThat(((Number) launches.get(1).get("learning_rate")).doubleValue()).isEqualTo(picked);
-    long realStart = ((Number) launches.get(1).get("seq")).longValue();
-    assertThat(records).filteredOn(r -> "decision".equals(r.get("type")))
-        .allSatisfy(d -> assertThat(((Number) d.get("seq")).longValue()).isGreaterThan(realStart));
+    assertTheProbeStartedTheRun(runDir);
   }
 
   @Test
