@@ -232,6 +232,7 @@ final class RunCommand implements Callable<Integer> {
     Signals.install("USR1", () -> s.preempt("SIGUSR1"));
     Thread hook = new Thread(() -> s.interrupt("SIGINT or SIGTERM"), "stepwarden-shutdown");
     Runtime.getRuntime().addShutdownHook(hook);
+    LIVE.add(s);
     try {
       Supervisor.Result r = s.run();
       Summary.print(r, out);
@@ -246,11 +247,26 @@ final class RunCommand implements Callable<Integer> {
       Thread.currentThread().interrupt();
       return new Ran(null, ExitCodes.INTERRUPTED);
     } finally {
+      LIVE.remove(s);
       try {
         Runtime.getRuntime().removeShutdownHook(hook);
       } catch (IllegalStateException shuttingDown) {
         // the hook is running: it stops the trainer itself
       }
+    }
+  }
+
+  /** Runs supervised by this JVM through {@link #supervise}; serve continues unfinished ones so. */
+  private static final java.util.Set<Supervisor> LIVE =
+      java.util.concurrent.ConcurrentHashMap.newKeySet();
+
+  /**
+   * Stops every run this JVM supervises through {@link #supervise}: what the JVM's shutdown does
+   * on SIGTERM, for a serve that stops in order before it exits.
+   */
+  static void interruptAll(String reason) {
+    for (Supervisor s : LIVE) {
+      s.interrupt(reason);
     }
   }
 

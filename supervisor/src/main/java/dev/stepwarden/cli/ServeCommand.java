@@ -4,6 +4,7 @@ import dev.stepwarden.queue.Night;
 import dev.stepwarden.queue.Queue;
 import dev.stepwarden.queue.QueueException;
 import dev.stepwarden.queue.QueueSettings;
+import dev.stepwarden.supervise.Signals;
 import dev.stepwarden.telemetry.MetricsServer;
 import io.micrometer.prometheusmetrics.PrometheusMeterRegistry;
 import java.io.IOException;
@@ -13,6 +14,9 @@ import java.time.Duration;
 import java.util.List;
 import java.util.concurrent.Callable;
 import java.util.concurrent.CountDownLatch;
+import java.util.concurrent.TimeUnit;
+import java.util.concurrent.atomic.AtomicBoolean;
+import java.util.concurrent.atomic.AtomicInteger;
 import picocli.CommandLine;
 import picocli.CommandLine.Command;
 import picocli.CommandLine.Mixin;
@@ -95,7 +99,6 @@ final class ServeCommand implements Callable<Integer> {
     MetricsServer metrics = null;
     Queue queue = null;
     Night night = null;
-    CountDownLatch stopped = new CountDownLatch(1);
     try {
       if (registry != null) {
         metrics = MetricsServer.start(registry, metricsHost, metricsPort);
@@ -113,28 +116,7 @@ final class ServeCommand implements Callable<Integer> {
             + "/metrics");
       }
       out.flush();
-      Night n = night;
-      MetricsServer m = metrics;
-      Thread hook = new Thread(() -> {
-        // Bounded: on the embedded store H2's own exit hook may close the database under
-        // Quartz, whose retries would otherwise hold the JVM. The run directories are already
-        // right by then (the runs were interrupted and audited); the next serve re-triggers them.
-        Thread closer = new Thread(n::close, "stepwarden-serve-close");
-        closer.setDaemon(true);
-        closer.start();
-        try {
-          closer.join(STOP_WAIT_MS);
-        } catch (InterruptedException e) {
-          Thread.currentThread().interrupt();
-        }
-        if (m != null) {
-          m.close();
-        }
-        stopped.countDown();
-      }, "stepwarden-serve-stop");
-      Runtime.getRuntime().addShutdownHook(hook);
-      stopped.await();
-      return ExitCodes.OK;
+      return stopInOrder(night, metrics);
     } catch (QueueException | IOException e) {
       err.println("stepwarden: " + e.getMessage());
       if (night != null) {
@@ -149,6 +131,75 @@ final class ServeCommand implements Callable<Integer> {
     } catch (InterruptedException e) {
       Thread.currentThread().interrupt();
       return ExitCodes.INTERRUPTED;
+    }
+  }
+
+  /**
+   * Serves until SIGTERM or SIGINT, then stops in order and returns 143 or 130. Serve takes these
+   * two signals itself rather than leaving them to the JVM's shutdown: the embedded store's own
+   * exit hook would close the database at once, while a slot may still be recording its job's
+   * end and the running jobs are being given their resume triggers (a slot stuck retrying on the
+   * closed database held the exit for many seconds). So every database write is done before
+   * the JVM exits. A shutdown hook still stops in the same way on any other exit (another
+   * signal, or a JVM where the handlers cannot be installed). Bounded by {@link #STOP_WAIT_MS}.
+   */
+  private static int stopInOrder(Night night, MetricsServer metrics)
+      throws InterruptedException {
+    CountDownLatch stopped = new CountDownLatch(1);
+    AtomicBoolean begun = new AtomicBoolean();
+    AtomicInteger code = new AtomicInteger(ExitCodes.OK);
+    Runnable stop = () -> {
+      if (!begun.compareAndSet(false, true)) {
+        awaitQuietly(stopped); // stopping already: an exit during the stop waits for it
+        return;
+      }
+      Thread closer = new Thread(night::close, "stepwarden-serve-close");
+      closer.setDaemon(true);
+      closer.start();
+      try {
+        closer.join(STOP_WAIT_MS);
+      } catch (InterruptedException e) {
+        Thread.currentThread().interrupt();
+      }
+      if (metrics != null) {
+        metrics.close();
+      }
+      stopped.countDown();
+    };
+    Runnable restoreTerm = Signals.replace("TERM", () -> signalled(code, 143, stop));
+    Runnable restoreInt = Signals.replace("INT", () -> signalled(code, 130, stop));
+    Thread hook = new Thread(stop, "stepwarden-serve-stop");
+    Runtime.getRuntime().addShutdownHook(hook);
+    try {
+      stopped.await();
+    } finally {
+      if (restoreTerm != null) {
+        restoreTerm.run();
+      }
+      if (restoreInt != null) {
+        restoreInt.run();
+      }
+      try {
+        Runtime.getRuntime().removeShutdownHook(hook);
+      } catch (IllegalStateException shuttingDown) {
+        // the hook is the one stopping
+      }
+    }
+    return code.get();
+  }
+
+  /** On the JVM's signal thread: note the exit code and stop on a thread of our own. */
+  private static void signalled(AtomicInteger code, int exit, Runnable stop) {
+    code.compareAndSet(ExitCodes.OK, exit);
+    Thread t = new Thread(stop, "stepwarden-serve-stop");
+    t.start();
+  }
+
+  private static void awaitQuietly(CountDownLatch latch) {
+    try {
+      latch.await(STOP_WAIT_MS + 5_000, TimeUnit.MILLISECONDS);
+    } catch (InterruptedException e) {
+      Thread.currentThread().interrupt();
     }
   }
 
@@ -171,7 +222,17 @@ final class ServeCommand implements Callable<Integer> {
     if (run == null || run.getCommandSpec().findOption("--resume") == null) {
       return null;
     }
-    return dir -> Main.execute(new String[] {"run", "--resume", dir.toString()},
-        new PrintWriter(System.out, true), new PrintWriter(System.err, true));
+    return new Night.Resumer() {
+      @Override
+      public int resume(java.nio.file.Path dir) {
+        return Main.execute(new String[] {"run", "--resume", dir.toString()},
+            new PrintWriter(System.out, true), new PrintWriter(System.err, true));
+      }
+
+      @Override
+      public void stopAll(String reason) {
+        RunCommand.interruptAll(reason);
+      }
+    };
   }
 }

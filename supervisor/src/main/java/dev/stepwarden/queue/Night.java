@@ -33,6 +33,12 @@ public final class Night implements AutoCloseable {
   public interface Resumer {
     /** Continues the run in {@code runDir} in the foreground; returns its exit code. */
     int resume(Path runDir) throws Exception;
+
+    /**
+     * Stops (and audits) every run this resumer is continuing, as {@link #close()} does with
+     * the runs it started itself; those return from {@link #resume} soon after.
+     */
+    void stopAll(String reason);
   }
 
   /**
@@ -213,6 +219,9 @@ public final class Night implements AutoCloseable {
       }
       for (Map.Entry<String, Supervisor> e : running.entrySet()) {
         e.getValue().interrupt("serve stopping");
+      }
+      if (options.resumer() != null) {
+        options.resumer().stopAll("serve stopping");
       }
       scheduler.shutdown(true);
     } catch (SchedulerException e) {

@@ -277,6 +277,9 @@ public final class RunReport {
     return HtmlPage.render(this);
   }
 
+  private static final String NO_END = "the audit log has no run-end record: the supervisor is"
+      + " still running or died (continue it with 'stepwarden run --resume')";
+
   private static final class Builder {
     Path dir;
     String name = "(unnamed run)";
@@ -284,8 +287,7 @@ public final class RunReport {
     Instant endedAt;
     String outcome = "unfinished";
     Integer exitCode;
-    String reason = "the audit log has no run-end record: the supervisor is still running or"
-        + " died (continue it with 'stepwarden run --resume')";
+    String reason = NO_END;
     double startRate = Double.NaN;
     double finalRate = Double.NaN;
     final List<Intervention> interventions = new ArrayList<>();
@@ -424,6 +426,16 @@ public final class RunReport {
             + str(r.get("signal")) + " at step " + num(r.get("step"), -1)));
         case "trainer-exit" -> events.add(new Event(seq, at, type, "the trainer exited with code "
             + num(r.get("exit_code"), 0) + " at step " + num(r.get("step"), -1)));
+        case "run-resume" -> {
+          // the run goes on after an interruption: unfinished until a later run-end
+          ended = false;
+          outcome = "unfinished";
+          exitCode = null;
+          reason = NO_END;
+          events.add(new Event(seq, at, type, "resumed: " + str(r.get("result"))));
+        }
+        case "run-suspended" -> events.add(new Event(seq, at, type, "suspended (pre-empted): "
+            + str(r.get("reason"))));
         case "run-end" -> {
           ended = true;
           outcome = Optional.ofNullable(str(r.get("outcome"))).orElse("unknown");

@@ -22,6 +22,16 @@ public final class Signals {
    *     {@code jdk.unsupported})
    */
   public static boolean install(String name, Runnable action) {
+    return replace(name, action) != null;
+  }
+
+  /**
+   * As {@link #install}, and gives back what puts the previous handler back (for a command run
+   * in-process, such as a test, that must not leave {@code TERM} or {@code INT} taken over).
+   *
+   * @return the restorer, or null when the signal cannot be handled here
+   */
+  public static Runnable replace(String name, Runnable action) {
     try {
       Class<?> signal = Class.forName("sun.misc.Signal");
       Class<?> handler = Class.forName("sun.misc.SignalHandler");
@@ -40,13 +50,19 @@ public final class Signals {
             };
           });
       Method handle = signal.getMethod("handle", signal, handler);
-      handle.invoke(null, sig, h);
-      return true;
+      Object previous = handle.invoke(null, sig, h);
+      return () -> {
+        try {
+          handle.invoke(null, sig, previous);
+        } catch (IllegalAccessException | InvocationTargetException e) {
+          // the JVM is going down or refuses: nothing left to restore for
+        }
+      };
     } catch (ClassNotFoundException | NoSuchMethodException | InstantiationException
         | IllegalAccessException e) {
-      return false;
+      return null;
     } catch (InvocationTargetException e) {
-      return false; // IllegalArgumentException: unknown signal, or one the JVM uses itself
+      return null; // IllegalArgumentException: unknown signal, or one the JVM uses itself
     }
   }
 }

@@ -218,8 +218,9 @@ public final class Supervisor {
   }
 
   /**
-   * A supervisor that continues the run in {@code runDir}, whose supervisor died (or was
-   * pre-empted), from its {@code state.json}. {@code rules} is the run's guard file (normally
+   * A supervisor that continues the run in {@code runDir}, whose supervisor died, was
+   * pre-empted or was interrupted (SIGINT, SIGTERM, a serve stopping), from its
+   * {@code state.json}. {@code rules} is the run's guard file (normally
    * {@code RUN_DIR/guards.yaml}); the command, working directory and environment come from the
    * saved state, so a command given after {@code --} at the start is kept.
    *
@@ -230,7 +231,10 @@ public final class Supervisor {
       throws IOException {
     Path root = runDir.toAbsolutePath().normalize();
     JsonNode state = StateFile.read(root.resolve(RunDirectory.STATE));
-    if (state.path("ended").asBoolean(false)) {
+    // An interrupted run was stopped from outside, not finished: it may go on (a serve that
+    // was stopped resumes its jobs so). Every other ending is final.
+    if (state.path("ended").asBoolean(false)
+        && !"interrupted".equals(state.path("outcome").asString(""))) {
       throw new IllegalStateException("the run in " + root + " already ended ("
           + state.path("outcome").asString("?") + "); there is nothing to resume");
     }

@@ -114,6 +114,21 @@ class RunReportTest {
   }
 
   @Test
+  void aRunResumedAfterItsRunEndIsUnfinishedUntilItEndsAgainAndTheResumeIsTold()
+      throws Exception {
+    Path d = copyOfDemo();
+    List<String> lines = new java.util.ArrayList<>(Files.readAllLines(d.resolve("audit.jsonl")));
+    long seq = lines.size() + 1;
+    // an interrupted run continued by run --resume whose supervisor then died (no second end)
+    lines.add("{\"seq\":" + seq + ",\"at\":\"2026-12-02T03:00:00Z\",\"type\":\"run-resume\","
+        + "\"result\":\"continuing from the vault checkpoint of step 700\"}");
+    Files.write(d.resolve("audit.jsonl"), lines);
+    RunReport r = RunReport.load(d);
+    assertThat(r.outcome()).isEqualTo("unfinished");
+    assertThat(r.text()).contains("resumed: continuing from the vault checkpoint of step 700");
+  }
+
+  @Test
   void aRewindIsToldInWordsAndDrawnAsAJumpBackWithTheAbandonedStretchFaded() throws Exception {
     Path d = rewindNight(tmp.resolve("rewind-night"), 0.4, 1.0);
     RunReport r = RunReport.load(d);
