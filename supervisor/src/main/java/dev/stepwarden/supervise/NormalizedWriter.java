@@ -18,8 +18,8 @@ import java.util.Map;
  * {@code "nan"}, {@code "inf"}, {@code "-inf"}.
  *
  * <p>Design: a flood of metric lines writes one normalized line each, so this goes straight to
- * bytes in one reused buffer: series keys are encoded once, the rate's text is kept while the
- * rate stays the same, and a value the trainer printed as a valid JSON number is copied as printed
+ * bytes in one reused buffer: series keys are encoded once, the rate's and the epoch's text are
+ * kept while they stay the same, and a value the trainer printed as a valid JSON number is copied as printed
  * (it parses back to the very same double) instead of being formatted again. The buffer goes to
  * the file when it fills, on {@link #flush()} and on {@link #close()}. Not thread-safe: the
  * supervisor calls it under its lock.
@@ -38,6 +38,8 @@ final class NormalizedWriter implements Closeable {
   private final Map<String, byte[]> keys = new HashMap<>();
   private long rateBits;
   private byte[] rateText;
+  private long epochBits;
+  private byte[] epochText;
   private long timeMillis;
   private byte[] timeText;
   /** The last step written and its digits: steps mostly count up by one. */
@@ -65,9 +67,18 @@ final class NormalizedWriter implements Closeable {
   void write(Sample s, double rate, MetricsSources sources, int source) throws IOException {
     put(STEP);
     putStep(s.step());
-    if (!Double.isNaN(s.epoch())) {
+    double epoch = s.epoch();
+    if (!Double.isNaN(epoch)) {
       put(EPOCH);
-      putDouble(s.epoch());
+      long eb = Double.doubleToRawLongBits(epoch);
+      if (epochText == null || eb != epochBits) { // an epoch lasts thousands of lines
+        epochBits = eb;
+        int from = len;
+        putDouble(epoch);
+        epochText = java.util.Arrays.copyOfRange(buf, from, len);
+      } else {
+        put(epochText);
+      }
     }
     put(TIME);
     long t = s.wallMillis();

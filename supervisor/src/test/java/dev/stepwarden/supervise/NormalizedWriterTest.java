@@ -129,6 +129,46 @@ class NormalizedWriterTest {
     }
   }
 
+  @Property(tries = 200)
+  void epochsRepeatedChangedAndAbsentAreEachWrittenAsTheirOwnValue(
+      @ForAll("epochs") List<Double> epochs) throws Exception {
+    // the writer keeps the last epoch's text: a repeat, a change, a missing epoch and the
+    // signed zeros must each come out as that line's own value
+    Sample[] s = new Sample[epochs.size()];
+    for (int i = 0; i < s.length; i++) {
+      s[i] = sample(i, epochs.get(i), "train", 1.0);
+    }
+    Path f = Files.createTempFile("epochs", ".jsonl"); // a property gets no @TempDir
+    List<String> lines;
+    try {
+      try (NormalizedWriter w = NormalizedWriter.append(f)) {
+        for (Sample x : s) {
+          w.write(x, 0.001, null, 0);
+        }
+      }
+      lines = Files.readAllLines(f, StandardCharsets.UTF_8);
+    } finally {
+      Files.deleteIfExists(f);
+    }
+    assertThat(lines).hasSize(s.length);
+    for (int i = 0; i < s.length; i++) {
+      JsonNode n = JSON.readTree(lines.get(i));
+      double e = epochs.get(i);
+      if (Double.isNaN(e)) {
+        assertThat(n.has("epoch")).as(lines.get(i)).isFalse();
+      } else {
+        assertThat(Double.doubleToRawLongBits(n.get("epoch").asDouble())).as(lines.get(i))
+            .isEqualTo(Double.doubleToRawLongBits(e));
+      }
+    }
+  }
+
+  @net.jqwik.api.Provide
+  net.jqwik.api.Arbitrary<List<Double>> epochs() {
+    return net.jqwik.api.Arbitraries.of(0.0, -0.0, 1.0, 2.0, 0.5, 2.25, 1e300, Double.NaN,
+        1234567.0, 12345678.0).list().ofMaxSize(30);
+  }
+
   @Test
   void stepsCountingPastEveryPowerOfTenKeepTheirDigits() throws Exception {
     Sample[] s = new Sample[1200];
