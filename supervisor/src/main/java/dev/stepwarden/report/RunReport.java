@@ -417,7 +417,9 @@ public final class RunReport {
             + num(r.get("exit_code"), -1) + " at step " + num(r.get("step"), -1)
             + (r.get("out_of_memory") != null ? " (out of memory: " + str(r.get("out_of_memory"))
                 + ")" : r.get("note") != null ? " (" + str(r.get("note")) + ")" : "")));
-        case "silence" -> events.add(new Event(seq, at, type, "no metric for "
+        case "silence" -> events.add(new Event(seq, at, type,
+            (Boolean.TRUE.equals(r.get("before_first_metric"))
+                ? "no first metric since the launch for " : "no metric for ")
             + num(r.get("quiet_ms"), 0) / 1000 + " s (limit " + num(r.get("limit_ms"), 0) / 1000
             + " s) at step " + num(r.get("step"), -1) + ": treated as hung"));
         case "warning" -> events.add(new Event(seq, at, type, "warning: "

@@ -96,6 +96,9 @@ final class Catalogue {
       Key.integer("crash_restarts", 3, 0, 10_000,
           "At most this many restarts after a crash; then the run gives up."),
       Key.duration("silence", "15m", "No metric for this long counts as a hang; 0 turns it off."),
+      Key.duration("first_metric", "1h", "After a launch, no first metric for this long counts as"
+          + " a hang (the trainer may load data or compile first); never shorter than silence;"
+          + " 0 waits for the first metric without a limit."),
       Key.duration("crash_backoff", "5s", "Wait before the first restart after a crash; doubles"
           + " with each further crash, up to 5 minutes."));
 

@@ -55,9 +55,14 @@ public final class Explain {
     out.add("Limits: rate between " + num(l.minRate()) + " and " + num(l.maxRate())
         + " (a guard that would go below the floor ends the run); at most " + l.rewinds()
         + " rewinds and " + l.crashRestarts() + " crash restarts; "
-        + (l.silence().isZero() ? "no silence watchdog."
-            : "no metric for " + l.silence().toMinutes() + " min counts as a hang."));
+        + (l.silence().isZero() ? "no silence watchdog." : silence(l)));
     return out;
+  }
+
+  private static String silence(GuardFile.Limits l) {
+    String s = "no metric for " + l.silence().toMinutes() + " min counts as a hang";
+    return s + (l.startupSilence().isZero() ? " (no limit before a launch's first metric)."
+        : ", as does no first metric " + l.startupSilence().toMinutes() + " min after a launch.");
   }
 
   static String condition(Condition c) {

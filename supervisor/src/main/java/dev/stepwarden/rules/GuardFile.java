@@ -146,7 +146,22 @@ public record GuardFile(Path source, Run run, ReadPlan read, Steer steer,
    * Central limits.
    *
    * @param silence no metric for this long counts as a hang; {@link Duration#ZERO} turns it off
+   * @param firstMetric the same before a launch's first metric (see {@link #startupSilence})
    */
   public record Limits(double minRate, double maxRate, int rewinds, int crashRestarts,
-      Duration silence, Duration crashBackoff) {}
+      Duration silence, Duration crashBackoff, Duration firstMetric) {
+    /**
+     * How long a launch may go without its first metric before it counts as hung: a trainer
+     * loads data, compiles or waits for its devices before it prints anything, and a hang
+     * watchdog that counted that time as silence would kill healthy runs. Never shorter than
+     * {@code silence}; {@link Duration#ZERO} when there is no limit (silence off, or
+     * {@code first_metric: 0}).
+     */
+    public Duration startupSilence() {
+      if (silence.isZero() || firstMetric.isZero()) {
+        return Duration.ZERO;
+      }
+      return firstMetric.compareTo(silence) < 0 ? silence : firstMetric;
+    }
+  }
 }

@@ -249,7 +249,7 @@ public final class GuardFiles {
     }
     return new GuardFile.Limits(min, max, (Integer) v.get("rewinds"),
         (Integer) v.get("crash_restarts"), (Duration) v.get("silence"),
-        (Duration) v.get("crash_backoff"));
+        (Duration) v.get("crash_backoff"), (Duration) v.get("first_metric"));
   }
 
   private List<GuardFile.Guard> guards(ConfigNode raw, ReadPlan read) throws ConfigException {

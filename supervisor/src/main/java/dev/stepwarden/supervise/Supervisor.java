@@ -188,6 +188,8 @@ public final class Supervisor {
   private int crashRestarts;
   private int interventions;
   private long lastMetricMillis;
+  /** Whether the current launch has printed a metric yet (until then the startup limit holds). */
+  private boolean metricSinceLaunch;
   private double lastTrain = Double.NaN;
   private double lastValidation = Double.NaN;
   private boolean missingWarned;
@@ -615,6 +617,7 @@ public final class Supervisor {
         .stopGrace(rules.run().stopGrace())
         .maxLineChars(rules.read().lineLimit())
         .build();
+    metricSinceLaunch = false; // before the pumps start: their first metric sets it
     trainer = TrainerProcess.start(spec, new LineBatchListener() {
       @Override
       public void onLines(TrainerStream stream, LineBatch lines) {
@@ -740,6 +743,7 @@ public final class Supervisor {
       return;
     }
     lastMetricMillis = now;
+    metricSinceLaunch = true;
     currentStep = s.step();
     int ti = s.indexOf("train");
     if (ti >= 0) {
@@ -1013,15 +1017,17 @@ public final class Supervisor {
               true));
         }
       }
-      Duration silence = rules.limits().silence();
+      Duration silence = metricSinceLaunch ? rules.limits().silence()
+          : rules.limits().startupSilence();
       if (!silence.isZero() && now - lastMetricMillis > silence.toMillis()) {
         Map<String, Object> f = new LinkedHashMap<>();
         f.put("quiet_ms", now - lastMetricMillis);
         f.put("limit_ms", silence.toMillis());
         f.put("step", intake.lastStep());
+        f.put("before_first_metric", !metricSinceLaunch);
         audit.append("silence", f);
-        say("no metric for " + (now - lastMetricMillis) / 1000 + " s: treating the trainer as"
-            + " hung");
+        say((metricSinceLaunch ? "no metric for " : "no first metric since the launch, ")
+            + (now - lastMetricMillis) / 1000 + " s: treating the trainer as hung");
         lastMetricMillis = now;
         if (crashRestarts >= rules.limits().crashRestarts()) {
           requests.add(new Request.End(null));

@@ -73,8 +73,21 @@ class GuardFilesTest {
     assertThat(flat.actions()).containsExactly(new GuardFile.Action.Scale(0.5));
     assertThat(g.guards().get(0).rewinds()).isTrue();
     assertThat(g.limits().silence()).isEqualTo(Duration.ofMinutes(15));
+    assertThat(g.limits().startupSilence()).isEqualTo(Duration.ofHours(1)); // the default
     assertThat(g.limits().minRate()).isEqualTo(1e-6);
     assertThat(g.checkpoints()).hasValueSatisfying(c -> assertThat(c.keep()).isEqualTo(5));
+  }
+
+  @Test
+  void theFirstMetricLimitIsNeverShorterThanSilenceAndZeroMeansNoLimit() throws Exception {
+    assertThat(parse(SKETCH.replace("silence: 15m", "silence: 15m\n  first_metric: 5m"))
+        .limits().startupSilence()).isEqualTo(Duration.ofMinutes(15));
+    assertThat(parse(SKETCH.replace("silence: 15m", "silence: 15m\n  first_metric: 2h"))
+        .limits().startupSilence()).isEqualTo(Duration.ofHours(2));
+    assertThat(parse(SKETCH.replace("silence: 15m", "silence: 15m\n  first_metric: 0"))
+        .limits().startupSilence()).isZero();
+    assertThat(parse(SKETCH.replace("silence: 15m", "silence: 0")).limits().startupSilence())
+        .isZero(); // no watchdog at all
   }
 
   @Test

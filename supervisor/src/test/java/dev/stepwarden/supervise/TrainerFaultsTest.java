@@ -68,6 +68,33 @@ class TrainerFaultsTest {
   }
 
   @Test
+  void aTrainerLoadingDataLongerThanTheSilenceLimitIsNotTakenForHung() throws Exception {
+    // 2.5 s before the first metric (loading data), then lines 0.1 s apart: silence is 1 s,
+    // but before a launch's first metric the first_metric limit (10 s) holds
+    Run r = run("import time\ntime.sleep(2.5)\nfor i in range(1, 6):\n"
+        + "    print('{\"step\": %d, \"loss\": %f}' % (i, 1.0 / i), flush=True)\n"
+        + "    time.sleep(0.1)\n",
+        "limits:\n  crash_restarts: 0\n  silence: 1s\n  first_metric: 10s\n");
+
+    assertThat(r.code).as(r.err).isZero();
+    List<Map<String, Object>> audit = Night.audit(r.runDir);
+    assertThat(ofType(audit, "silence")).isEmpty();
+    assertThat(ofType(audit, "launch")).hasSize(1);
+  }
+
+  @Test
+  void aTrainerSilentFromItsLaunchIsHungOnceTheFirstMetricLimitHasPassed() throws Exception {
+    Run r = run("import time\ntime.sleep(60)\n",
+        "  stop_grace: 1s\nlimits:\n  crash_restarts: 0\n  silence: 1s\n  first_metric: 2s\n");
+
+    assertThat(r.code).as(r.err).isEqualTo(4);
+    Map<String, Object> silence = ofType(Night.audit(r.runDir), "silence").get(0);
+    assertThat(silence.get("before_first_metric")).isEqualTo(true);
+    assertThat(num(silence.get("limit_ms"))).isEqualTo(2000);
+    assertThat(num(silence.get("quiet_ms"))).isGreaterThan(2000);
+  }
+
+  @Test
   void hungTrainerThatIgnoresTermIsFoundBySilenceAndKilledAfterTheGrace() throws Exception {
     Run r = run("import signal, time\nsignal.signal(signal.SIGTERM, signal.SIG_IGN)\n"
         + "print('{\"step\": 1, \"loss\": 1.0}', flush=True)\n"
