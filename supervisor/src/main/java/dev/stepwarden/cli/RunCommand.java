@@ -225,11 +225,12 @@ final class RunCommand implements Callable<Integer> {
   }
 
   /**
-   * Runs {@code s} with a shutdown hook for SIGINT/SIGTERM and a SIGUSR1 handler for
-   * pre-emption; prints the short summary.
+   * Runs {@code s} with a shutdown hook for SIGINT/SIGTERM, a SIGUSR1 handler for pre-emption
+   * and a SIGHUP handler that only records it; prints the short summary.
    */
   static Ran supervise(Supervisor s, PrintWriter out, PrintWriter err) {
     Signals.install("USR1", () -> s.preempt("SIGUSR1"));
+    Signals.install("HUP", s::hangup); // a closed terminal does not end the night
     Thread hook = new Thread(() -> s.interrupt("SIGINT or SIGTERM"), "stepwarden-shutdown");
     Runtime.getRuntime().addShutdownHook(hook);
     LIVE.add(s);

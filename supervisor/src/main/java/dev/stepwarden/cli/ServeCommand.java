@@ -168,6 +168,8 @@ final class ServeCommand implements Callable<Integer> {
     };
     Runnable restoreTerm = Signals.replace("TERM", () -> signalled(code, 143, stop));
     Runnable restoreInt = Signals.replace("INT", () -> signalled(code, 130, stop));
+    // a closed terminal does not stop the queue (nor, through the JVM's shutdown, its runs)
+    Runnable restoreHup = Signals.replace("HUP", () -> { });
     Thread hook = new Thread(stop, "stepwarden-serve-stop");
     Runtime.getRuntime().addShutdownHook(hook);
     try {
@@ -178,6 +180,9 @@ final class ServeCommand implements Callable<Integer> {
       }
       if (restoreInt != null) {
         restoreInt.run();
+      }
+      if (restoreHup != null) {
+        restoreHup.run();
       }
       try {
         Runtime.getRuntime().removeShutdownHook(hook);

@@ -424,6 +424,8 @@ public final class RunReport {
             + " s) at step " + num(r.get("step"), -1) + ": treated as hung"));
         case "warning" -> events.add(new Event(seq, at, type, "warning: "
             + str(r.get("message"))));
+        case "hangup" -> events.add(new Event(seq, at, type, "SIGHUP (the terminal went away) at"
+            + " step " + num(r.get("step"), -1) + ": ignored, the run went on"));
         case "interrupted" -> events.add(new Event(seq, at, type, "interrupted by "
             + str(r.get("signal")) + " at step " + num(r.get("step"), -1)));
         case "trainer-exit" -> events.add(new Event(seq, at, type, "the trainer exited with code "

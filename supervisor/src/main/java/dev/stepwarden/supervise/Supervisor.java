@@ -322,6 +322,29 @@ public final class Supervisor {
     }
   }
 
+  /**
+   * SIGHUP (the terminal that started the run went away): recorded, and the run goes on. A night
+   * run must not die with an SSH session; its output is in the run directory.
+   */
+  public void hangup() {
+    if (finished) {
+      return;
+    }
+    try {
+      synchronized (lock) {
+        if (audit != null) {
+          Map<String, Object> f = new LinkedHashMap<>();
+          f.put("signal", "SIGHUP");
+          f.put("step", intake == null ? -1 : intake.lastStep());
+          f.put("action", "none: the run goes on (stop it with SIGINT or SIGTERM)");
+          audit.append("hangup", f);
+        }
+      }
+    } catch (IOException e) {
+      options.console().println("stepwarden: " + e.getMessage());
+    }
+  }
+
   /** Pre-emption: stop at the next tick after asking the trainer for a checkpoint. */
   public void preempt(String why) {
     if (!finished) {
