@@ -266,8 +266,21 @@ final class RunCommand implements Callable<Integer> {
    * on SIGTERM, for a serve that stops in order before it exits.
    */
   static void interruptAll(String reason) {
+    // all at once: each stop may take its trainer's whole grace
+    java.util.List<Thread> stops = new java.util.ArrayList<>();
     for (Supervisor s : LIVE) {
-      s.interrupt(reason);
+      Thread t = new Thread(() -> s.interrupt(reason), "stepwarden-stop");
+      t.setDaemon(true);
+      t.start();
+      stops.add(t);
+    }
+    for (Thread t : stops) {
+      try {
+        t.join();
+      } catch (InterruptedException e) {
+        Thread.currentThread().interrupt();
+        return;
+      }
     }
   }
 

@@ -7,6 +7,7 @@ import java.io.IOException;
 import java.io.PrintStream;
 import java.nio.file.Path;
 import java.time.Clock;
+import java.util.ArrayList;
 import java.util.List;
 import java.util.Map;
 import java.util.Set;
@@ -191,6 +192,21 @@ public final class Night implements AutoCloseable {
     }
   }
 
+  private static Thread stopping(String name, Runnable stop) {
+    Thread t = new Thread(stop, name);
+    t.setDaemon(true);
+    t.start();
+    return t;
+  }
+
+  private static void joinQuietly(Thread t) {
+    try {
+      t.join();
+    } catch (InterruptedException e) {
+      Thread.currentThread().interrupt(); // the stops go on; the bounded caller decides
+    }
+  }
+
   /** Jobs running in this process now. */
   public Set<String> runningHere() {
     return Set.copyOf(running.keySet());
@@ -217,11 +233,19 @@ public final class Night implements AutoCloseable {
           say("could not keep " + id + " for the next serve: " + e.getMessage());
         }
       }
+      // All at once: each stop may take the trainer's whole grace, and a serve with four slots
+      // stopping one after the other would run past the stop bound (and a container engine's).
+      List<Thread> stops = new ArrayList<>();
       for (Map.Entry<String, Supervisor> e : running.entrySet()) {
-        e.getValue().interrupt("serve stopping");
+        stops.add(stopping("stepwarden-stop-" + e.getKey(),
+            () -> e.getValue().interrupt("serve stopping")));
       }
       if (options.resumer() != null) {
-        options.resumer().stopAll("serve stopping");
+        stops.add(stopping("stepwarden-stop-resumed",
+            () -> options.resumer().stopAll("serve stopping")));
+      }
+      for (Thread t : stops) {
+        joinQuietly(t);
       }
       scheduler.shutdown(true);
     } catch (SchedulerException e) {

@@ -69,6 +69,48 @@ class ServeStopTest {
     assertThat(Files.readString(home.resolve("serve-audit.jsonl"))).contains("\"serve-stop\"");
   }
 
+  @Test
+  void sigtermStopsTheRunsOfAllSlotsAtOnceNotOneGraceAfterAnother() throws Exception {
+    // trainers that ignore TERM use their whole grace (4 s) before the KILL: stopped one after
+    // the other, the second would be interrupted 4 s after the first
+    Path script = tmp.resolve("stubborn.sh");
+    Files.writeString(script, "trap '' TERM\ni=1\nwhile [ $i -le 600 ]; do\n"
+        + "  echo \"{\\\"step\\\": $i, \\\"loss\\\": 0.5}\"\n  sleep 0.1\n  i=$((i+1))\ndone\n");
+    Path rules = tmp.resolve("stubborn.yaml");
+    Files.writeString(rules, "run:\n  name: stubborn\n  learning_rate: 0.1\n  stop_grace: 4s\n"
+        + "  command: [sh, " + script + "]\nlimits:\n  silence: 0\n");
+    Path home = tmp.resolve("home");
+    String h = home.toString();
+    List<String> ids = List.of(
+        Fixtures.cli("queue", "add", "--home", h, "--rules", rules.toString()).strip(),
+        Fixtures.cli("queue", "add", "--home", h, "--rules", rules.toString()).strip());
+    Path log = tmp.resolve("serve.log");
+    Process serve = Fixtures.stepwarden(log, "serve", "--home", h, "--slots", "2");
+    try {
+      assertThat(Fixtures.await(() -> ids.stream().allMatch(id -> Fixtures.read(home
+          .resolve("runs").resolve(id).resolve("metrics.jsonl")).lines().count() >= 3), 30_000))
+          .as("both jobs run; serve said:\n" + Fixtures.read(log)).isTrue();
+      serve.destroy();
+      assertThat(serve.waitFor(30, TimeUnit.SECONDS)).as(Fixtures.read(log)).isTrue();
+      assertThat(serve.exitValue()).isEqualTo(143);
+    } finally {
+      serve.destroyForcibly();
+    }
+    List<java.time.Instant> stopped = new java.util.ArrayList<>();
+    for (String id : ids) {
+      List<java.util.Map<String, Object>> audit = dev.stepwarden.audit.AuditReader.read(
+          home.resolve("runs").resolve(id).resolve("audit.jsonl")).records();
+      java.util.Map<String, Object> interrupted = audit.stream()
+          .filter(r -> "interrupted".equals(r.get("type"))).findFirst().orElseThrow();
+      stopped.add(java.time.Instant.parse((String) interrupted.get("at")));
+      assertThat(audit.get(audit.size() - 1)).containsEntry("type", "run-end")
+          .containsEntry("outcome", "interrupted");
+    }
+    // far below the 4 s grace either way; one after the other would be at least 4 s apart
+    assertThat(java.time.Duration.between(stopped.get(0), stopped.get(1)).abs())
+        .isLessThan(java.time.Duration.ofSeconds(2));
+  }
+
   /** Waits for {@code lines} metric lines, sends SIGTERM, checks the orderly exit. */
   private static void stopWhileRunning(Process serve, Path log, Path metrics, long lines,
       Path events, int startIndex) throws Exception {
