@@ -59,24 +59,31 @@ guards:
 YAML
 # Side by side, three interleaved rounds, medians: the pipe's line rate and the whole supervisor.
 : > "$W/side.txt"
+# Besides wall time, the CPU time (user + system, children included) of each: it depends less on
+# how busy the shared machine is than the ratio of wall times does.
 for round in 1 2 3; do
-  T_CAT=$( { /usr/bin/time -f %e sh -c "cat '$F' | wc -l >/dev/null"; } 2>&1 | tail -1)
-  /usr/bin/time -o "$W/time.txt" -f "%e %M" java $RUNJVM -jar "$JAR" run --quiet \
+  /usr/bin/time -o "$W/timec.txt" -f "%e %U %S" sh -c "cat '$F' | wc -l >/dev/null"
+  read -r T_CAT U_CAT S_CAT < "$W/timec.txt"
+  /usr/bin/time -o "$W/time.txt" -f "%e %M %U %S" java $RUNJVM -jar "$JAR" run --quiet \
     --rules "$W/flood.yaml" --run-dir "$W/runs" -- cat "$F" >/dev/null 2>"$W/run.err" || true
-  OUT=$(tail -1 "$W/time.txt")
-  T_RUN=${OUT% *}; RSS_KB=${OUT#* }
+  read -r T_RUN RSS_KB U_RUN S_RUN < "$W/time.txt"
   rm -rf "$W/runs" # the logs of a flood are as big as the file: free the space
   echo "round $round: cat | wc -l ${T_CAT}s ($(rate "$T_CAT")), stepwarden run -- cat ${T_RUN}s" \
-    "($(rate "$T_RUN")), peak RSS $((RSS_KB / 1024)) MB"
-  echo "$T_CAT $T_RUN" >> "$W/side.txt"
+    "($(rate "$T_RUN")), peak RSS $((RSS_KB / 1024)) MB; CPU ${U_CAT}+${S_CAT}s against" \
+    "${U_RUN}+${S_RUN}s"
+  echo "$T_CAT $T_RUN $U_CAT $S_CAT $U_RUN $S_RUN" >> "$W/side.txt"
 done
 python3 - "$W/side.txt" "$T_PY" "$N" <<'PY'
 import statistics, sys
 rows = [list(map(float, l.split())) for l in open(sys.argv[1]) if l.strip()]
-c, r = (statistics.median(x) for x in zip(*rows))
+c, r = (statistics.median(row[k] for row in rows) for k in (0, 1))
+cc = statistics.median(row[2] + row[3] for row in rows)
+rc = statistics.median(row[4] + row[5] for row in rows)
 p, n = float(sys.argv[2]), int(sys.argv[3])
 print(f"medians: cat | wc -l {n/c:,.0f} lines/s, stepwarden run -- cat {n/r:,.0f} lines/s")
 print(f"ratios: run/cat = {c/r:.1%} of the pipe rate; run vs python = {p/r:.1f}x")
+print(f"CPU per million lines (user + system, medians): cat | wc -l {cc/n*1e6:.3f} s,"
+      f" stepwarden run -- cat {rc/n*1e6:.3f} s ({rc/n*1e9:,.0f} ns a line)")
 PY
 
 cat > "$W/trainer.py" <<'PY'
