@@ -1,5 +1,6 @@
 package dev.stepwarden.cli;
 
+import dev.stepwarden.process.Stops;
 import dev.stepwarden.rules.ConfigException;
 import dev.stepwarden.rules.GuardFile;
 import dev.stepwarden.rules.GuardFiles;
@@ -266,22 +267,7 @@ final class RunCommand implements Callable<Integer> {
    * on SIGTERM, for a serve that stops in order before it exits.
    */
   static void interruptAll(String reason) {
-    // all at once: each stop may take its trainer's whole grace
-    java.util.List<Thread> stops = new java.util.ArrayList<>();
-    for (Supervisor s : LIVE) {
-      Thread t = new Thread(() -> s.interrupt(reason), "stepwarden-stop");
-      t.setDaemon(true);
-      t.start();
-      stops.add(t);
-    }
-    for (Thread t : stops) {
-      try {
-        t.join();
-      } catch (InterruptedException e) {
-        Thread.currentThread().interrupt();
-        return;
-      }
-    }
+    Stops.allAtOnce(LIVE.stream().map(s -> (Runnable) () -> s.interrupt(reason)).toList());
   }
 
   record Ran(Supervisor.Result result, int exitCode) {}

@@ -545,19 +545,11 @@ public final class TrainerProcess implements AutoCloseable {
   }
 
   private static void stopAllOnShutdown() {
-    List<Thread> stoppers = new ArrayList<>();
+    List<Runnable> stops = new ArrayList<>();
     for (TrainerProcess tp : LIVE) {
-      Thread t = new Thread(tp::stop, "stepwarden-stop-" + tp.pid);
-      t.start();
-      stoppers.add(t);
+      stops.add(tp::stop);
     }
-    for (Thread t : stoppers) {
-      try {
-        t.join();
-      } catch (InterruptedException e) {
-        return;
-      }
-    }
+    Stops.allAtOnce(stops);
   }
 
   private static void startDaemon(Runnable r, String name) {

@@ -1,6 +1,7 @@
 package dev.stepwarden.queue;
 
 import dev.stepwarden.audit.AuditLog;
+import dev.stepwarden.process.Stops;
 import dev.stepwarden.supervise.Supervisor;
 import io.micrometer.core.instrument.MeterRegistry;
 import java.io.IOException;
@@ -192,21 +193,6 @@ public final class Night implements AutoCloseable {
     }
   }
 
-  private static Thread stopping(String name, Runnable stop) {
-    Thread t = new Thread(stop, name);
-    t.setDaemon(true);
-    t.start();
-    return t;
-  }
-
-  private static void joinQuietly(Thread t) {
-    try {
-      t.join();
-    } catch (InterruptedException e) {
-      Thread.currentThread().interrupt(); // the stops go on; the bounded caller decides
-    }
-  }
-
   /** Jobs running in this process now. */
   public Set<String> runningHere() {
     return Set.copyOf(running.keySet());
@@ -233,20 +219,15 @@ public final class Night implements AutoCloseable {
           say("could not keep " + id + " for the next serve: " + e.getMessage());
         }
       }
-      // All at once: each stop may take the trainer's whole grace, and a serve with four slots
-      // stopping one after the other would run past the stop bound (and a container engine's).
-      List<Thread> stops = new ArrayList<>();
-      for (Map.Entry<String, Supervisor> e : running.entrySet()) {
-        stops.add(stopping("stepwarden-stop-" + e.getKey(),
-            () -> e.getValue().interrupt("serve stopping")));
+      // All at once: one after the other, four slots would run past the stop bound.
+      List<Runnable> stops = new ArrayList<>();
+      for (Supervisor s : running.values()) {
+        stops.add(() -> s.interrupt("serve stopping"));
       }
       if (options.resumer() != null) {
-        stops.add(stopping("stepwarden-stop-resumed",
-            () -> options.resumer().stopAll("serve stopping")));
+        stops.add(() -> options.resumer().stopAll("serve stopping"));
       }
-      for (Thread t : stops) {
-        joinQuietly(t);
-      }
+      Stops.allAtOnce(stops);
       scheduler.shutdown(true);
     } catch (SchedulerException e) {
       say("stopping: " + e.getMessage());
