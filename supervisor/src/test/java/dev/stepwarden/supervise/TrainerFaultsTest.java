@@ -69,12 +69,13 @@ class TrainerFaultsTest {
 
   @Test
   void aTrainerLoadingDataLongerThanTheSilenceLimitIsNotTakenForHung() throws Exception {
-    // 2.5 s before the first metric (loading data), then lines 0.1 s apart: silence is 1 s,
-    // but before a launch's first metric the first_metric limit (10 s) holds
-    Run r = run("import time\ntime.sleep(2.5)\nfor i in range(1, 6):\n"
+    // 4 s before the first metric (loading data), then lines 0.1 s apart: silence is 2 s
+    // (twenty line gaps, room for a loaded machine), but before a launch's first metric the
+    // first_metric limit (20 s) holds
+    Run r = run("import time\ntime.sleep(4)\nfor i in range(1, 6):\n"
         + "    print('{\"step\": %d, \"loss\": %f}' % (i, 1.0 / i), flush=True)\n"
         + "    time.sleep(0.1)\n",
-        "limits:\n  crash_restarts: 0\n  silence: 1s\n  first_metric: 10s\n");
+        "limits:\n  crash_restarts: 0\n  silence: 2s\n  first_metric: 20s\n");
 
     assertThat(r.code).as(r.err).isZero();
     List<Map<String, Object>> audit = Night.audit(r.runDir);
