@@ -166,8 +166,8 @@ final class ServeCommand implements Callable<Integer> {
       }
       stopped.countDown();
     };
-    Runnable restoreTerm = Signals.replace("TERM", () -> signalled(code, 143, stop));
-    Runnable restoreInt = Signals.replace("INT", () -> signalled(code, 130, stop));
+    Runnable restoreTerm = Signals.replace("TERM", () -> signalled(code, 143, begun, stop));
+    Runnable restoreInt = Signals.replace("INT", () -> signalled(code, 130, begun, stop));
     // a closed terminal does not stop the queue (nor, through the JVM's shutdown, its runs)
     Runnable restoreHup = Signals.replace("HUP", () -> { });
     Thread hook = new Thread(stop, "stepwarden-serve-stop");
@@ -193,9 +193,19 @@ final class ServeCommand implements Callable<Integer> {
     return code.get();
   }
 
-  /** On the JVM's signal thread: note the exit code and stop on a thread of our own. */
-  private static void signalled(AtomicInteger code, int exit, Runnable stop) {
+  /**
+   * On the JVM's signal thread: note the exit code and stop on a thread of our own. A second
+   * signal while stopping hurries the stop: the trainers are killed without the rest of their
+   * grace.
+   */
+  private static void signalled(AtomicInteger code, int exit, AtomicBoolean begun,
+      Runnable stop) {
     code.compareAndSet(ExitCodes.OK, exit);
+    if (begun.get()) {
+      System.err.println("stepwarden serve: signalled again: stopping the trainers now (KILL)");
+      dev.stepwarden.process.TrainerProcess.hurryAll();
+      return;
+    }
     Thread t = new Thread(stop, "stepwarden-serve-stop");
     t.start();
   }

@@ -92,6 +92,8 @@ public final class TrainerProcess implements AutoCloseable {
   private static final Duration PUMP_WAIT = Duration.ofSeconds(2);
   private static final Duration GROUP_CONFIRM_WAIT = Duration.ofSeconds(2);
   private static final Set<TrainerProcess> LIVE = ConcurrentHashMap.newKeySet();
+  /** Set by {@link #hurryAll}: the rest of the grace is skipped, KILL follows at once. */
+  private volatile boolean hurry;
   private static final AtomicInteger SEQUENCE = new AtomicInteger();
 
   static {
@@ -261,11 +263,11 @@ public final class TrainerProcess implements AutoCloseable {
       boolean killed = false;
       if (wasAlive) {
         signalTree(tree, false);
-        if (stopInterrupted || !awaitGone(tree, spec.stopGrace())) {
+        if (stopInterrupted || hurry || !awaitGone(tree, spec.stopGrace(), true)) {
           collectTree(tree);
           signalTree(tree, true);
           killed = true;
-          awaitGone(tree, KILL_WAIT);
+          awaitGone(tree, KILL_WAIT, false);
         }
       }
       OptionalInt code = reap();
@@ -483,14 +485,15 @@ public final class TrainerProcess implements AutoCloseable {
   /**
    * Polls until the tree is gone or the wait is over; returns whether it is gone. An interrupt
    * ends the wait early (recorded in {@code stopInterrupted}); the KILL phase is never cut short
-   * by a repeat because the flag is consumed here.
+   * by a repeat because the flag is consumed here. {@link #hurryAll} ends a grace wait
+   * ({@code isGrace}) early as well.
    */
-  private boolean awaitGone(Set<ProcessHandle> tree, Duration wait) {
+  private boolean awaitGone(Set<ProcessHandle> tree, Duration wait, boolean isGrace) {
     long deadline = System.nanoTime() + wait.toNanos();
     long sleepMillis = 5;
     boolean grace = !stopInterrupted;
     while (!treeGone(tree)) {
-      if (System.nanoTime() >= deadline) {
+      if (System.nanoTime() >= deadline || (isGrace && hurry)) {
         return false;
       }
       try {
@@ -541,6 +544,17 @@ public final class TrainerProcess implements AutoCloseable {
     if (firstFailure.compareAndSet(null, t)) {
       System.err.println("stepwarden: trainer " + pid + ": " + t.getMessage()
           + (t.getCause() == null ? "" : " (" + t.getCause() + ")"));
+    }
+  }
+
+  /**
+   * Makes every stop of this JVM's trainers, running or to come, skip the rest of its grace and
+   * KILL at once: what a second SIGTERM or SIGINT to a stopping serve asks for. No thread is
+   * interrupted, so no audit write in progress is disturbed.
+   */
+  public static void hurryAll() {
+    for (TrainerProcess tp : LIVE) {
+      tp.hurry = true;
     }
   }
 

@@ -70,15 +70,51 @@ class ServeStopTest {
   }
 
   @Test
-  void sigtermStopsTheRunsOfAllSlotsAtOnceNotOneGraceAfterAnother() throws Exception {
-    // trainers that ignore TERM use their whole grace (4 s) before the KILL: stopped one after
-    // the other, the second would be interrupted 4 s after the first
+  void aSecondSigtermKillsTheTrainersWithoutWaitingOutTheirGrace() throws Exception {
+    // a trainer that ignores TERM, with a 60 s grace: the first SIGTERM would wait all of it
+    Path rules = stubborn("60s");
+    Path home = tmp.resolve("home");
+    String h = home.toString();
+    String id = Fixtures.cli("queue", "add", "--home", h, "--rules", rules.toString()).strip();
+    Path log = tmp.resolve("serve.log");
+    Process serve = Fixtures.stepwarden(log, "serve", "--home", h, "--slots", "1");
+    try {
+      assertThat(Fixtures.await(() -> Fixtures.read(home.resolve("runs").resolve(id)
+          .resolve("metrics.jsonl")).lines().count() >= 3, 30_000))
+          .as("the job runs; serve said:\n" + Fixtures.read(log)).isTrue();
+      serve.destroy();
+      assertThat(Fixtures.await(() -> Fixtures.read(home.resolve("runs").resolve(id)
+          .resolve("audit.jsonl")).contains("\"interrupted\""), 10_000)).isTrue();
+      serve.destroy(); // the second SIGTERM
+      assertThat(serve.waitFor(30, TimeUnit.SECONDS)).as("serve exits long before the 60 s"
+          + " grace; it said:\n" + Fixtures.read(log)).isTrue();
+      assertThat(serve.exitValue()).isEqualTo(143);
+      assertThat(Fixtures.read(log)).contains("signalled again");
+    } finally {
+      serve.destroyForcibly();
+    }
+    List<java.util.Map<String, Object>> audit = dev.stepwarden.audit.AuditReader.read(
+        home.resolve("runs").resolve(id).resolve("audit.jsonl")).records();
+    assertThat(audit.get(audit.size() - 1)).containsEntry("type", "run-end")
+        .containsEntry("outcome", "interrupted");
+  }
+
+  /** A guard file whose trainer ignores TERM and prints a metric every 0.1 s for a minute. */
+  private Path stubborn(String grace) throws Exception {
     Path script = tmp.resolve("stubborn.sh");
     Files.writeString(script, "trap '' TERM\ni=1\nwhile [ $i -le 600 ]; do\n"
         + "  echo \"{\\\"step\\\": $i, \\\"loss\\\": 0.5}\"\n  sleep 0.1\n  i=$((i+1))\ndone\n");
     Path rules = tmp.resolve("stubborn.yaml");
-    Files.writeString(rules, "run:\n  name: stubborn\n  learning_rate: 0.1\n  stop_grace: 4s\n"
-        + "  command: [sh, " + script + "]\nlimits:\n  silence: 0\n");
+    Files.writeString(rules, "run:\n  name: stubborn\n  learning_rate: 0.1\n  stop_grace: " + grace
+        + "\n  command: [sh, " + script + "]\nlimits:\n  silence: 0\n");
+    return rules;
+  }
+
+  @Test
+  void sigtermStopsTheRunsOfAllSlotsAtOnceNotOneGraceAfterAnother() throws Exception {
+    // trainers that ignore TERM use their whole grace (4 s) before the KILL: stopped one after
+    // the other, the second would be interrupted 4 s after the first
+    Path rules = stubborn("4s");
     Path home = tmp.resolve("home");
     String h = home.toString();
     List<String> ids = List.of(
