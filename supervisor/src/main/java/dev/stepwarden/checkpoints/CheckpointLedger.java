@@ -43,7 +43,9 @@ import java.util.stream.Stream;
  *   <li><b>Baseline.</b> Files present before the trainer starts (an earlier run's leftovers) are
  *       ignored until they change: their step is unknown.
  *   <li><b>Vault.</b> Each healthy entry is kept in the {@link CheckpointVault} the moment it
- *       settles; its hash is taken of the vault copy, the bytes a rewind will use. {@link #prune}
+ *       settles; its hash is taken of the vault copy, the bytes a rewind will use. A file the
+ *       trainer replaced between the settle check and the link (or copy) is not kept under the
+ *       old step: the copy is dropped and the new file becomes a sighting of its own. {@link #prune}
  *       keeps the best and the latest K healthy copies. An in-place overwrite of a linked file is
  *       recognised by its unchanged file identity: that entry is marked damaged and the vault
  *       switches to copies.
@@ -239,7 +241,23 @@ public final class CheckpointLedger {
       }
       pending.remove(p);
       settled.put(p, now);
-      Entry e = settle(p, s);
+      Entry e = settle(p, s, now);
+      if (e == REPLACED) {
+        // The trainer put a newer file at this path between our look and the vault's link or
+        // copy: what we kept is not what settled. Start over with it as a new sighting, at the
+        // step of now, so its step is never an earlier one than the bytes it holds.
+        if (done == null) {
+          settled.remove(p);
+        } else {
+          settled.put(p, done);
+        }
+        long[] later = stamp(p);
+        if (later != null) {
+          pending.put(p, new Sighting(later[0], later[1], wallMillis, stepFor(p, step), train,
+              validation, healthy));
+        }
+        continue;
+      }
       if (e != null) {
         entries.add(e);
         fresh.add(e);
@@ -256,12 +274,23 @@ public final class CheckpointLedger {
     return scan(step, train, validation, healthy, wallMillis, false);
   }
 
-  private Entry settle(Path p, Sighting s) {
+  /** Marks a file replaced while it was being kept (see {@link #scan}). */
+  private static final Entry REPLACED = new Entry(Path.of(""), -1, 0, 0, "", Double.NaN,
+      Double.NaN, false, null, OK);
+
+  private Entry settle(Path p, Sighting s, long[] settledStamp) throws IOException {
     Path kept = null;
     String hash;
     try {
       if (vault != null && s.healthy) {
         CheckpointVault.Kept k = vault.keep(p, s.step);
+        // A link shares the inode it got: its stamp must be the settled one. A copy read the
+        // path: the path must still carry the settled stamp after the copy.
+        long[] got = stamp(k.linked() ? k.path() : p);
+        if (got == null || got[0] != settledStamp[0] || got[1] != settledStamp[1]) {
+          vault.remove(k.path());
+          return REPLACED;
+        }
         kept = k.path();
         if (k.linked() && k.fileKey() != null) {
           linkedKeys.put(k.fileKey(), entries.size());

@@ -166,8 +166,9 @@ final class ServeCommand implements Callable<Integer> {
       }
       stopped.countDown();
     };
-    Runnable restoreTerm = Signals.replace("TERM", () -> signalled(code, 143, begun, stop));
-    Runnable restoreInt = Signals.replace("INT", () -> signalled(code, 130, begun, stop));
+    AtomicBoolean once = new AtomicBoolean(); // the first TERM or INT stops, a second hurries
+    Runnable restoreTerm = Signals.replace("TERM", () -> signalled(code, 143, once, stop));
+    Runnable restoreInt = Signals.replace("INT", () -> signalled(code, 130, once, stop));
     // a closed terminal does not stop the queue (nor, through the JVM's shutdown, its runs)
     Runnable restoreHup = Signals.replace("HUP", () -> { });
     Thread hook = new Thread(stop, "stepwarden-serve-stop");
@@ -198,10 +199,10 @@ final class ServeCommand implements Callable<Integer> {
    * signal while stopping hurries the stop: the trainers are killed without the rest of their
    * grace.
    */
-  private static void signalled(AtomicInteger code, int exit, AtomicBoolean begun,
+  private static void signalled(AtomicInteger code, int exit, AtomicBoolean before,
       Runnable stop) {
     code.compareAndSet(ExitCodes.OK, exit);
-    if (begun.get()) {
+    if (!before.compareAndSet(false, true)) {
       System.err.println("stepwarden serve: signalled again: stopping the trainers now (KILL)");
       dev.stepwarden.process.TrainerProcess.hurryAll();
       return;
