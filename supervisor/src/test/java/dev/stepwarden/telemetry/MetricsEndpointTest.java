@@ -54,8 +54,11 @@ class MetricsEndpointTest {
       Supervisor s = new Supervisor(g, new Supervisor.Options(tmp.resolve("run"), true, null,
           new PrintStream(new ByteArrayOutputStream(), true, StandardCharsets.UTF_8), meters));
       Future<Supervisor.Result> run = ex.submit(s::run);
+      // A scrape is a snapshot: the meters follow each line (the series value first, then the
+      // line counts), so poll until the third line's state is complete, within 5 s.
       String page = "";
-      for (int i = 0; i < 200 && !page.contains("series=\"validation\""); i++) {
+      for (int i = 0; i < 200 && !(page.contains("series=\"validation\"")
+          && page.contains("stepwarden_lines_read_total{run=\"night-1\"} 3.0")); i++) {
         Thread.sleep(25);
         page = get(http, server.port());
       }
