@@ -278,7 +278,7 @@ public final class CheckpointLedger {
   private static final Entry REPLACED = new Entry(Path.of(""), -1, 0, 0, "", Double.NaN,
       Double.NaN, false, null, OK);
 
-  private Entry settle(Path p, Sighting s, long[] settledStamp) throws IOException {
+  private Entry settle(Path p, Sighting s, long[] settledStamp) {
     Path kept = null;
     String hash;
     try {

@@ -92,9 +92,9 @@ public final class TrainerProcess implements AutoCloseable {
   private static final Duration PUMP_WAIT = Duration.ofSeconds(2);
   private static final Duration GROUP_CONFIRM_WAIT = Duration.ofSeconds(2);
   private static final Set<TrainerProcess> LIVE = ConcurrentHashMap.newKeySet();
+  private static final AtomicInteger SEQUENCE = new AtomicInteger();
   /** Set by {@link #hurryAll}: the rest of the grace is skipped, KILL follows at once. */
   private volatile boolean hurry;
-  private static final AtomicInteger SEQUENCE = new AtomicInteger();
 
   static {
     try {
@@ -548,8 +548,8 @@ public final class TrainerProcess implements AutoCloseable {
   }
 
   /**
-   * Makes every stop of this JVM's trainers, running or to come, skip the rest of its grace and
-   * KILL at once: what a second SIGTERM or SIGINT to a stopping serve asks for. No thread is
+   * Makes the stop of every trainer alive in this JVM now (under way or still to be called) skip
+   * the rest of its grace and KILL at once: what a second SIGTERM or SIGINT to a stopping serve asks for. No thread is
    * interrupted, so no audit write in progress is disturbed.
    */
   public static void hurryAll() {
