@@ -114,6 +114,11 @@ public final class CheckpointLedger {
   private final List<Notice> notices = new ArrayList<>();
   private long previousScanStep = -1;
   private Path inUse;
+  /**
+   * Test seam: runs between the settle check and the vault's link or copy, the window in which a
+   * trainer can rename a newer file onto the path. Tests in this package set it; nothing else does.
+   */
+  Runnable beforeKeep = () -> {};
 
   private static final class Sighting {
     long size;
@@ -283,6 +288,7 @@ public final class CheckpointLedger {
     String hash;
     try {
       if (vault != null && s.healthy) {
+        beforeKeep.run();
         CheckpointVault.Kept k = vault.keep(p, s.step);
         // A link shares the inode it got: its stamp must be the settled one. A copy read the
         // path: the path must still carry the settled stamp after the copy.

@@ -10,6 +10,8 @@ import java.nio.file.attribute.BasicFileAttributes;
 import java.util.List;
 import org.junit.jupiter.api.Test;
 import org.junit.jupiter.api.io.TempDir;
+import org.junit.jupiter.params.ParameterizedTest;
+import org.junit.jupiter.params.provider.ValueSource;
 
 /** The ledger and vault on real files; the scan's clock is passed in, so no sleeping. */
 class CheckpointLedgerTest {
@@ -53,6 +55,37 @@ class CheckpointLedgerTest {
     assertThat(e).hasSize(1);
     assertThat(e.get(0).step()).isEqualTo(100);
     assertThat(e.get(0).train()).isEqualTo(0.5); // the figures of the first sighting too
+  }
+
+  @ParameterizedTest(name = "copy only: {0}")
+  @ValueSource(booleans = {false, true})
+  void aFileReplacedBetweenTheSettleCheckAndTheLinkIsKeptUnderTheStepAtWhichItAppeared(
+      boolean copyOnly) throws Exception {
+    // The window is real (a loaded machine hit it end to end: the vault's "step 80" held the
+    // bytes of step 100); the seam puts the trainer's rename exactly inside it.
+    CheckpointVault vault = new CheckpointVault(vaultDir(), 5, copyOnly);
+    CheckpointLedger l = new CheckpointLedger(work, "ckpt/*.pt", vault, 0);
+    Path ckpt = work.resolve("ckpt/last.pt");
+    writeByRename(ckpt, "weights at step 80");
+    l.scan(80, 1.0, 1.0, true, 0);
+    l.beforeKeep = () -> {
+      try {
+        writeByRename(ckpt, "weights at step 100, a longer file");
+      } catch (Exception e) {
+        throw new IllegalStateException(e);
+      }
+    };
+    assertThat(l.scan(100, 1.0, 1.0, true, 1))
+        .as("the step-80 file settled, but the vault got the step-100 file: keep nothing yet")
+        .isEmpty();
+    l.beforeKeep = () -> {};
+    List<CheckpointLedger.Entry> e = l.scan(120, 1.0, 1.0, true, 2);
+    assertThat(e).hasSize(1);
+    assertThat(e.get(0).step()).isEqualTo(100);
+    assertThat(Files.readString(e.get(0).vault())).isEqualTo("weights at step 100, a longer file");
+    try (var files = Files.list(vaultDir())) {
+      assertThat(files).as("the mismatched link was taken back").hasSize(1);
+    }
   }
 
   @Test
