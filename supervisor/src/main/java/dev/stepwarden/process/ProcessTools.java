@@ -13,8 +13,9 @@ import java.util.concurrent.TimeUnit;
  * The OS helpers the launcher relies on, found at fixed absolute paths (never through PATH, so a
  * trainer's environment cannot swap them): util-linux {@code setsid} (own session and process
  * group), {@code setpriv --pdeathsig} (die with the supervisor) and {@code kill} (signal a group).
- * Each is probed once by running it, so a present but unusable binary (seccomp, a stripped-down
- * variant without the options) counts as absent and the launcher falls back.
+ * They are probed once by running them (all three in one chain, else each alone), so a present
+ * but unusable binary (seccomp, a stripped-down variant without the options) counts as absent and
+ * the launcher falls back.
  */
 record ProcessTools(Optional<Path> setsid, Optional<Path> setpriv, Optional<Path> kill) {
   private static final List<String> SETSID = List.of("/usr/bin/setsid", "/bin/setsid");
@@ -53,11 +54,23 @@ record ProcessTools(Optional<Path> setsid, Optional<Path> setpriv, Optional<Path
     static final ProcessTools TOOLS = detect();
 
     private static ProcessTools detect() {
-      Optional<Path> setsid = find(SETSID).filter(p -> probe(
+      Optional<Path> setsid0 = find(SETSID);
+      Optional<Path> setpriv0 = find(SETPRIV);
+      Optional<Path> kill0 = find(KILL);
+      // The usual case in one process instead of three (each probe is a fork and exec, and
+      // this runs before the first launch): the very chain a launch uses, ending in kill.
+      if (setsid0.isPresent() && setpriv0.isPresent() && kill0.isPresent()
+          && probe(List.of(setpriv0.get().toString(), "--pdeathsig", "KILL", "--",
+              setsid0.get().toString(), "--", kill0.get().toString(), "-s", "0", "--",
+              Long.toString(ProcessHandle.current().pid())))) {
+        return new ProcessTools(setsid0, setpriv0, kill0);
+      }
+      // Else each on its own, so one unusable helper does not cost the others.
+      Optional<Path> setsid = setsid0.filter(p -> probe(
           List.of(p.toString(), "--", "/bin/sh", "-c", ":")));
-      Optional<Path> setpriv = find(SETPRIV).filter(p -> probe(
+      Optional<Path> setpriv = setpriv0.filter(p -> probe(
           List.of(p.toString(), "--pdeathsig", "KILL", "--", "/bin/sh", "-c", ":")));
-      Optional<Path> kill = find(KILL).filter(p -> probe(List.of(p.toString(), "-s", "0", "--",
+      Optional<Path> kill = kill0.filter(p -> probe(List.of(p.toString(), "-s", "0", "--",
           Long.toString(ProcessHandle.current().pid()))));
       return new ProcessTools(setsid, setpriv, kill);
     }
