@@ -5,6 +5,7 @@ import dev.stepwarden.rules.ConfigException;
 import dev.stepwarden.rules.GuardFile;
 import dev.stepwarden.rules.GuardFiles;
 import dev.stepwarden.supervise.RunDirectory;
+import dev.stepwarden.supervise.RunOutcome;
 import dev.stepwarden.supervise.Signals;
 import dev.stepwarden.supervise.RunObserver;
 import dev.stepwarden.supervise.Supervisor;
@@ -19,9 +20,10 @@ import java.nio.file.Path;
 import java.time.Duration;
 import java.util.List;
 import java.util.Locale;
+import java.util.concurrent.Callable;
+import java.util.concurrent.atomic.AtomicInteger;
 import java.util.regex.Matcher;
 import java.util.regex.Pattern;
-import java.util.concurrent.Callable;
 import picocli.CommandLine.Command;
 import picocli.CommandLine.Model.CommandSpec;
 import picocli.CommandLine.Option;
@@ -226,19 +228,34 @@ final class RunCommand implements Callable<Integer> {
   }
 
   /**
-   * Runs {@code s} with a shutdown hook for SIGINT/SIGTERM, a SIGUSR1 handler for pre-emption
-   * and a SIGHUP handler that only records it; prints the short summary.
+   * Runs {@code s} with handlers for SIGINT/SIGTERM (the first stops the trainer with its grace,
+   * a second kills it at once), a SIGUSR1 handler for pre-emption and a SIGHUP handler that only
+   * records it; prints the short summary. A JVM shutdown hook stays as the fallback for a JVM
+   * where the handlers cannot be installed ({@code -Xrs}) and for an exit from elsewhere.
    */
   static Ran supervise(Supervisor s, PrintWriter out, PrintWriter err) {
     Signals.install("USR1", () -> s.preempt("SIGUSR1"));
     Signals.install("HUP", s::hangup); // a closed terminal does not end the night
+    // Inside serve (which continues runs through this method) TERM and INT are serve's: it stops
+    // every run in order itself.
+    AtomicInteger signalled = new AtomicInteger(); // the first signal's exit code, 0 before one
+    Runnable restoreTerm = null;
+    Runnable restoreInt = null;
+    if (!ServeCommand.ownsStopSignals()) {
+      restoreTerm = Signals.replace("TERM", () -> stopSignal(s, "SIGTERM", 143, signalled, err));
+      restoreInt = Signals.replace("INT", () -> stopSignal(s, "SIGINT", 130, signalled, err));
+    }
     Thread hook = new Thread(() -> s.interrupt("SIGINT or SIGTERM"), "stepwarden-shutdown");
     Runtime.getRuntime().addShutdownHook(hook);
     LIVE.add(s);
     try {
       Supervisor.Result r = s.run();
       Summary.print(r, out);
-      return new Ran(r, r.outcome().exitCode());
+      int code = r.outcome().exitCode();
+      if (r.outcome() == RunOutcome.INTERRUPTED && signalled.get() != 0) {
+        code = signalled.get(); // 143 for SIGTERM, as a JVM ended by it would give
+      }
+      return new Ran(r, code);
     } catch (FileAlreadyExistsException e) {
       err.println("stepwarden: " + e.getFile() + ": " + e.getReason());
       return new Ran(null, ExitCodes.USAGE);
@@ -250,12 +267,39 @@ final class RunCommand implements Callable<Integer> {
       return new Ran(null, ExitCodes.INTERRUPTED);
     } finally {
       LIVE.remove(s);
+      if (restoreTerm != null) {
+        restoreTerm.run();
+      }
+      if (restoreInt != null) {
+        restoreInt.run();
+      }
       try {
         Runtime.getRuntime().removeShutdownHook(hook);
       } catch (IllegalStateException shuttingDown) {
         // the hook is running: it stops the trainer itself
       }
     }
+  }
+
+  /**
+   * On the JVM's signal thread: the first TERM or INT stops the trainer (audited, TERM, grace,
+   * KILL) on a thread of its own, so this returns at once and a second signal can arrive; the
+   * second skips the rest of the grace. The run then ends on its own thread, which writes the
+   * run's last records and state before the process exits.
+   */
+  private static void stopSignal(Supervisor s, String name, int exit, AtomicInteger first,
+      PrintWriter err) {
+    if (!first.compareAndSet(0, exit)) {
+      err.println("stepwarden: " + name + " again: stopping the trainer now (KILL)");
+      err.flush();
+      dev.stepwarden.process.TrainerProcess.hurryAll();
+      return;
+    }
+    err.println("stepwarden: " + name + ": stopping the trainer (it has its grace to save and"
+        + " exit; signal again to kill it now)");
+    err.flush();
+    Thread t = new Thread(() -> s.interrupt(name), "stepwarden-stop");
+    t.start();
   }
 
   /** Runs supervised by this JVM through {@link #supervise}; serve continues unfinished ones so. */

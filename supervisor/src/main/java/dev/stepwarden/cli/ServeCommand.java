@@ -169,6 +169,10 @@ final class ServeCommand implements Callable<Integer> {
     AtomicBoolean once = new AtomicBoolean(); // the first TERM or INT stops, a second hurries
     Runnable restoreTerm = Signals.replace("TERM", () -> signalled(code, 143, once, stop));
     Runnable restoreInt = Signals.replace("INT", () -> signalled(code, 130, once, stop));
+    boolean owns = restoreTerm != null && restoreInt != null;
+    if (owns) {
+      STOP_SIGNAL_OWNERS.incrementAndGet();
+    }
     // a closed terminal does not stop the queue (nor, through the JVM's shutdown, its runs)
     Runnable restoreHup = Signals.replace("HUP", () -> { });
     Thread hook = new Thread(stop, "stepwarden-serve-stop");
@@ -176,6 +180,9 @@ final class ServeCommand implements Callable<Integer> {
     try {
       stopped.await();
     } finally {
+      if (owns) {
+        STOP_SIGNAL_OWNERS.decrementAndGet();
+      }
       if (restoreTerm != null) {
         restoreTerm.run();
       }
@@ -192,6 +199,17 @@ final class ServeCommand implements Callable<Integer> {
       }
     }
     return code.get();
+  }
+
+  /** Serves running in this JVM that hold TERM and INT (a test may run more than one). */
+  private static final AtomicInteger STOP_SIGNAL_OWNERS = new AtomicInteger();
+
+  /**
+   * Whether a serve in this JVM holds TERM and INT: the runs it continues through {@code run
+   * --resume} then leave those signals to it, since it stops all its runs in order.
+   */
+  static boolean ownsStopSignals() {
+    return STOP_SIGNAL_OWNERS.get() > 0;
   }
 
   /**
