@@ -131,7 +131,7 @@ final class PlateauDetector implements Detector {
     // The sentence leads with the best value, which is what stopped improving.
     String summary = "best " + series + " " + Figures.num(reference) + " (step " + referenceStep
         + ") has not improved by " + Figures.percent(minRelGain) + " in " + n
-        + " evaluations (best since " + Figures.num(windowBest) + ", gain "
+        + " evaluations (best of those " + Figures.num(windowBest) + ", gain "
         + Figures.percent(Math.max(0, gain)) + ", latest " + Figures.num(value)
         + "); trend test p " + Figures.p(mk.pDownward()) + ".";
     return Optional.of(new Evidence(NAME, summary, figures));

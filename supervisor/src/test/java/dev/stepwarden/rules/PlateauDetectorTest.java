@@ -48,7 +48,7 @@ class PlateauDetectorTest {
     assertThat(e.summary())
         .isEqualTo(
             "best validation 0.7 (step 4000) has not improved by 0.5 % in 5 evaluations (best"
-                + " since 0.699, gain 0.143 %, latest 0.701); trend test p = 0.59.");
+                + " of those 0.699, gain 0.143 %, latest 0.701); trend test p = 0.59.");
   }
 
   @Test
