@@ -45,37 +45,4 @@ interface LineParser {
   default boolean parse(byte[] b, int off, int len, Fields out) {
     return parse(new String(b, off, len, java.nio.charset.StandardCharsets.UTF_8), out);
   }
-
-  /** Reads the common spellings of numbers, including non-finite ones; NaN-boxed null if not. */
-  static Double number(String text) {
-    String t = text.trim();
-    if (t.isEmpty()) {
-      return null;
-    }
-    switch (t.toLowerCase(java.util.Locale.ROOT)) {
-      case "nan":
-      case "+nan":
-      case "-nan":
-        return Double.NaN;
-      case "inf":
-      case "+inf":
-      case "infinity":
-      case "+infinity":
-        return Double.POSITIVE_INFINITY;
-      case "-inf":
-      case "-infinity":
-        return Double.NEGATIVE_INFINITY;
-      default:
-        break;
-    }
-    char c = t.charAt(0);
-    if (!(c == '-' || c == '+' || c == '.' || (c >= '0' && c <= '9'))) {
-      return null;
-    }
-    try {
-      return Double.parseDouble(t);
-    } catch (NumberFormatException e) {
-      return null;
-    }
-  }
 }

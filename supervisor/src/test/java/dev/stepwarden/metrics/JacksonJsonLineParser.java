@@ -81,7 +81,40 @@ final class JacksonJsonLineParser implements LineParser {
   }
 
   private static Double nonFinite(String s) {
-    Double v = LineParser.number(s);
+    Double v = number(s);
     return v != null && !Double.isFinite(v) ? v : null;
+  }
+
+  /** Reads the common spellings of numbers, including non-finite ones; null if not. */
+  private static Double number(String text) {
+    String t = text.trim();
+    if (t.isEmpty()) {
+      return null;
+    }
+    switch (t.toLowerCase(java.util.Locale.ROOT)) {
+      case "nan":
+      case "+nan":
+      case "-nan":
+        return Double.NaN;
+      case "inf":
+      case "+inf":
+      case "infinity":
+      case "+infinity":
+        return Double.POSITIVE_INFINITY;
+      case "-inf":
+      case "-infinity":
+        return Double.NEGATIVE_INFINITY;
+      default:
+        break;
+    }
+    char c = t.charAt(0);
+    if (!(c == '-' || c == '+' || c == '.' || (c >= '0' && c <= '9'))) {
+      return null;
+    }
+    try {
+      return Double.parseDouble(t);
+    } catch (NumberFormatException e) {
+      return null;
+    }
   }
 }
