@@ -241,7 +241,7 @@ final class RunCommand implements Callable<Integer> {
     AtomicInteger signalled = new AtomicInteger(); // the first signal's exit code, 0 before one
     Runnable restoreTerm = null;
     Runnable restoreInt = null;
-    if (!ServeCommand.ownsStopSignals()) {
+    if (!ServeCommand.serving()) {
       restoreTerm = Signals.replace("TERM", () -> stopSignal(s, "SIGTERM", 143, signalled, err));
       restoreInt = Signals.replace("INT", () -> stopSignal(s, "SIGINT", 130, signalled, err));
     }

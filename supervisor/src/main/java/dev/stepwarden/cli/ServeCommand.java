@@ -82,6 +82,18 @@ final class ServeCommand implements Callable<Integer> {
 
   @Override
   public Integer call() {
+    // Counted from before the queue starts: a job it resumes at once must already find that its
+    // TERM and INT are serve's (it would otherwise take them, and put the JVM's own handlers back
+    // over serve's when it ends).
+    SERVES.incrementAndGet();
+    try {
+      return serve();
+    } finally {
+      SERVES.decrementAndGet();
+    }
+  }
+
+  private int serve() {
     PrintWriter out = spec.commandLine().getOut();
     PrintWriter err = spec.commandLine().getErr();
     QueueSettings settings;
@@ -169,10 +181,6 @@ final class ServeCommand implements Callable<Integer> {
     AtomicBoolean once = new AtomicBoolean(); // the first TERM or INT stops, a second hurries
     Runnable restoreTerm = Signals.replace("TERM", () -> signalled(code, 143, once, stop));
     Runnable restoreInt = Signals.replace("INT", () -> signalled(code, 130, once, stop));
-    boolean owns = restoreTerm != null && restoreInt != null;
-    if (owns) {
-      STOP_SIGNAL_OWNERS.incrementAndGet();
-    }
     // a closed terminal does not stop the queue (nor, through the JVM's shutdown, its runs)
     Runnable restoreHup = Signals.replace("HUP", () -> { });
     Thread hook = new Thread(stop, "stepwarden-serve-stop");
@@ -180,9 +188,6 @@ final class ServeCommand implements Callable<Integer> {
     try {
       stopped.await();
     } finally {
-      if (owns) {
-        STOP_SIGNAL_OWNERS.decrementAndGet();
-      }
       if (restoreTerm != null) {
         restoreTerm.run();
       }
@@ -201,15 +206,16 @@ final class ServeCommand implements Callable<Integer> {
     return code.get();
   }
 
-  /** Serves running in this JVM that hold TERM and INT (a test may run more than one). */
-  private static final AtomicInteger STOP_SIGNAL_OWNERS = new AtomicInteger();
+  /** Serves running in this JVM (a test may run more than one). */
+  private static final AtomicInteger SERVES = new AtomicInteger();
 
   /**
-   * Whether a serve in this JVM holds TERM and INT: the runs it continues through {@code run
-   * --resume} then leave those signals to it, since it stops all its runs in order.
+   * Whether a serve runs in this JVM: TERM and INT are then serve's, and the runs it continues
+   * through {@code run --resume} leave them alone, since serve stops all its runs in order (or,
+   * where its handlers cannot be installed, its shutdown hook does).
    */
-  static boolean ownsStopSignals() {
-    return STOP_SIGNAL_OWNERS.get() > 0;
+  static boolean serving() {
+    return SERVES.get() > 0;
   }
 
   /**
