@@ -21,7 +21,6 @@ import java.time.Duration;
 import java.util.List;
 import java.util.Locale;
 import java.util.concurrent.Callable;
-import java.util.concurrent.atomic.AtomicInteger;
 import java.util.regex.Matcher;
 import java.util.regex.Pattern;
 import picocli.CommandLine.Command;
@@ -238,13 +237,10 @@ final class RunCommand implements Callable<Integer> {
     Signals.install("HUP", s::hangup); // a closed terminal does not end the night
     // Inside serve (which continues runs through this method) TERM and INT are serve's: it stops
     // every run in order itself.
-    AtomicInteger signalled = new AtomicInteger(); // the first signal's exit code, 0 before one
-    Runnable restoreTerm = null;
-    Runnable restoreInt = null;
-    if (!ServeCommand.serving()) {
-      restoreTerm = Signals.replace("TERM", () -> stopSignal(s, "SIGTERM", 143, signalled, err));
-      restoreInt = Signals.replace("INT", () -> stopSignal(s, "SIGINT", 130, signalled, err));
-    }
+    StopSignals signals = ServeCommand.serving() ? null : StopSignals.take(s::interrupt,
+        "stepwarden-stop", err, "stepwarden: %s: stopping the trainer (it has its grace to save"
+            + " and exit; signal again to kill it now)",
+        "stepwarden: %s again: stopping the trainer now (KILL)");
     Thread hook = new Thread(() -> s.interrupt("SIGINT or SIGTERM"), "stepwarden-shutdown");
     Runtime.getRuntime().addShutdownHook(hook);
     LIVE.add(s);
@@ -252,8 +248,8 @@ final class RunCommand implements Callable<Integer> {
       Supervisor.Result r = s.run();
       Summary.print(r, out);
       int code = r.outcome().exitCode();
-      if (r.outcome() == RunOutcome.INTERRUPTED && signalled.get() != 0) {
-        code = signalled.get(); // 143 for SIGTERM, as a JVM ended by it would give
+      if (r.outcome() == RunOutcome.INTERRUPTED && signals != null && signals.exitCode() != 0) {
+        code = signals.exitCode(); // 143 for SIGTERM, as a JVM ended by it would give
       }
       return new Ran(r, code);
     } catch (FileAlreadyExistsException e) {
@@ -267,11 +263,8 @@ final class RunCommand implements Callable<Integer> {
       return new Ran(null, ExitCodes.INTERRUPTED);
     } finally {
       LIVE.remove(s);
-      if (restoreTerm != null) {
-        restoreTerm.run();
-      }
-      if (restoreInt != null) {
-        restoreInt.run();
+      if (signals != null) {
+        signals.close();
       }
       try {
         Runtime.getRuntime().removeShutdownHook(hook);
@@ -279,27 +272,6 @@ final class RunCommand implements Callable<Integer> {
         // the hook is running: it stops the trainer itself
       }
     }
-  }
-
-  /**
-   * On the JVM's signal thread: the first TERM or INT stops the trainer (audited, TERM, grace,
-   * KILL) on a thread of its own, so this returns at once and a second signal can arrive; the
-   * second skips the rest of the grace. The run then ends on its own thread, which writes the
-   * run's last records and state before the process exits.
-   */
-  private static void stopSignal(Supervisor s, String name, int exit, AtomicInteger first,
-      PrintWriter err) {
-    if (!first.compareAndSet(0, exit)) {
-      err.println("stepwarden: " + name + " again: stopping the trainer now (KILL)");
-      err.flush();
-      dev.stepwarden.process.TrainerProcess.hurryAll();
-      return;
-    }
-    err.println("stepwarden: " + name + ": stopping the trainer (it has its grace to save and"
-        + " exit; signal again to kill it now)");
-    err.flush();
-    Thread t = new Thread(() -> s.interrupt(name), "stepwarden-stop");
-    t.start();
   }
 
   /** Runs supervised by this JVM through {@link #supervise}; serve continues unfinished ones so. */

@@ -159,7 +159,6 @@ final class ServeCommand implements Callable<Integer> {
       throws InterruptedException {
     CountDownLatch stopped = new CountDownLatch(1);
     AtomicBoolean begun = new AtomicBoolean();
-    AtomicInteger code = new AtomicInteger(ExitCodes.OK);
     Runnable stop = () -> {
       if (!begun.compareAndSet(false, true)) {
         awaitQuietly(stopped); // stopping already: an exit during the stop waits for it
@@ -178,9 +177,9 @@ final class ServeCommand implements Callable<Integer> {
       }
       stopped.countDown();
     };
-    AtomicBoolean once = new AtomicBoolean(); // the first TERM or INT stops, a second hurries
-    Runnable restoreTerm = Signals.replace("TERM", () -> signalled(code, 143, once, stop));
-    Runnable restoreInt = Signals.replace("INT", () -> signalled(code, 130, once, stop));
+    StopSignals signals = StopSignals.take(name -> stop.run(), "stepwarden-serve-stop",
+        new PrintWriter(System.err, true), null,
+        "stepwarden serve: signalled again: stopping the trainers now (KILL)");
     // a closed terminal does not stop the queue (nor, through the JVM's shutdown, its runs)
     Runnable restoreHup = Signals.replace("HUP", () -> { });
     Thread hook = new Thread(stop, "stepwarden-serve-stop");
@@ -188,12 +187,7 @@ final class ServeCommand implements Callable<Integer> {
     try {
       stopped.await();
     } finally {
-      if (restoreTerm != null) {
-        restoreTerm.run();
-      }
-      if (restoreInt != null) {
-        restoreInt.run();
-      }
+      signals.close();
       if (restoreHup != null) {
         restoreHup.run();
       }
@@ -203,7 +197,7 @@ final class ServeCommand implements Callable<Integer> {
         // the hook is the one stopping
       }
     }
-    return code.get();
+    return signals.exitCode(); // 0 (ExitCodes.OK) when no signal stopped it
   }
 
   /** Serves running in this JVM (a test may run more than one). */
@@ -216,23 +210,6 @@ final class ServeCommand implements Callable<Integer> {
    */
   static boolean serving() {
     return SERVES.get() > 0;
-  }
-
-  /**
-   * On the JVM's signal thread: note the exit code and stop on a thread of our own. A second
-   * signal while stopping hurries the stop: the trainers are killed without the rest of their
-   * grace.
-   */
-  private static void signalled(AtomicInteger code, int exit, AtomicBoolean before,
-      Runnable stop) {
-    code.compareAndSet(ExitCodes.OK, exit);
-    if (!before.compareAndSet(false, true)) {
-      System.err.println("stepwarden serve: signalled again: stopping the trainers now (KILL)");
-      dev.stepwarden.process.TrainerProcess.hurryAll();
-      return;
-    }
-    Thread t = new Thread(stop, "stepwarden-serve-stop");
-    t.start();
   }
 
   private static void awaitQuietly(CountDownLatch latch) {
