@@ -111,6 +111,33 @@ public final class GuardEngine {
     }
   }
 
+  /**
+   * Starts a new launch generation; the supervisor calls it before each launch after the first,
+   * and no sample of an ended generation reaches the engine afterwards.
+   *
+   * <p>Reset semantics: every detector forgets its window, a raise on probation is dropped and
+   * the onset watch starts over, because the lines of the ended generation no longer describe the
+   * network that trains now. The rate, the rewind count, the best validation value and the
+   * guards' rests carry over (they belong to the run, not to a launch).
+   * <ul>
+   *   <li>{@code fromScratch}: a new network (restart with no checkpoint): a new reference is
+   *       built from the new generation's own lines;
+   *   <li>otherwise the launch resumes a checkpoint of step {@code fromStep} (a rewind or a crash
+   *       restart): the reference the engine had at that step, when it still knows it, is
+   *       restored, so a rewound run is judged against the level it had before the trouble.
+   * </ul>
+   *
+   * @param fromStep the step the launch resumes at (ignored when {@code fromScratch})
+   * @param fromScratch whether the launch starts a new network without a checkpoint
+   */
+  public void beginGeneration(long fromStep, boolean fromScratch) {
+    for (Armed a : armed) {
+      a.detector.reset();
+    }
+    onset.reset();
+    probation = null;
+  }
+
   /** Feeds one sample; returns the decision when a guard (or the safety net) fired. */
   public Optional<Decision> onSample(Sample sample) {
     samples++;

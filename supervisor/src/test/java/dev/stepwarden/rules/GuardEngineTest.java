@@ -130,4 +130,20 @@ class GuardEngineTest {
     }
     assertThat(a).isNotEmpty().isEqualTo(b);
   }
+
+  @Test
+  void aNewGenerationFromScratchIsNotJudgedAgainstTheEndedLaunchsBest() throws Exception {
+    String rises = "  - name: spike\n"
+        + "    when: { rises: { above_best: 3, samples: 1, smoothing: 0 } }\n"
+        + "    do: { scale: 0.5 }\n";
+    GuardEngine e = new GuardEngine(rules(rises, 0.1, 1e-4));
+    for (int i = 0; i < 20; i++) {
+      assertThat(e.onSample(train(i, 2.3 / (1 + i)))).isEmpty();
+    }
+    e.beginGeneration(0, true);
+    // a fresh network starts near ln(10) again: far above the ended launch's best, yet healthy
+    assertThat(e.onSample(train(0, 2.3))).isEmpty();
+    assertThat(e.onSample(train(1, 2.2))).isEmpty();
+    assertThat(e.rate()).isEqualTo(0.1);
+  }
 }
