@@ -1,11 +1,13 @@
 package dev.stepwarden.rules;
 
 import java.io.IOException;
+import java.io.InputStream;
 import java.nio.charset.CharacterCodingException;
 import java.nio.charset.CodingErrorAction;
 import java.nio.charset.StandardCharsets;
 import java.nio.file.Files;
 import java.nio.file.Path;
+import java.nio.file.attribute.BasicFileAttributes;
 import java.nio.ByteBuffer;
 import java.util.ArrayList;
 import java.util.LinkedHashMap;
@@ -163,12 +165,23 @@ final class YamlReader {
 
   ConfigNode read() throws ConfigException {
     try {
-      long size = Files.size(file);
-      if (size > MAX_BYTES) {
-        throw new ConfigException(file, 1, 1, "the file is " + size
+      // A device or a FIFO has no size to trust (/dev/zero never ends, a FIFO blocks on open):
+      // only a regular file is opened, and never more than the bound is read from it.
+      BasicFileAttributes a = Files.readAttributes(file, BasicFileAttributes.class);
+      if (!a.isRegularFile()) {
+        throw new ConfigException(file, 1, 1, "not a regular file ("
+            + (a.isDirectory() ? "a folder" : "a device, FIFO or socket")
+            + "); give the path of a guard file saved on disk");
+      }
+      byte[] bytes;
+      try (InputStream in = Files.newInputStream(file)) {
+        bytes = in.readNBytes(MAX_BYTES + 1);
+      }
+      if (bytes.length > MAX_BYTES) {
+        throw new ConfigException(file, 1, 1, "the file is larger than " + MAX_BYTES
             + " bytes; a guard file may be at most " + MAX_BYTES + " bytes (1 MiB)");
       }
-      return read(Files.readAllBytes(file));
+      return read(bytes);
     } catch (IOException e) {
       throw new ConfigException(file, 1, 1, "cannot read the guard file: " + e.getMessage());
     }
