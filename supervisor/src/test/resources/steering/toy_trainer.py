@@ -71,7 +71,7 @@ while step < a.steps:
     if a.diverge_at > 0 and step > a.diverge_at and lr >= a.stable_below:
         loss *= 10 ** ((step - a.diverge_at) / a.growth_steps)
     line = {"step": step, "loss": loss}
-    line.update(control.report() if control is not None else {"lr": lr})
+    line.update(control.confirmation() if control is not None else {"lr": lr})
     print(json.dumps(line), flush=True)
     if step % a.eval_every == 0:
         print(json.dumps({"step": step, "val_loss": 0.5}), flush=True)

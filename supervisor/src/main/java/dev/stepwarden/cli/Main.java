@@ -1,5 +1,6 @@
 package dev.stepwarden.cli;
 
+import dev.stepwarden.control.ControlFile;
 import java.io.PrintWriter;
 import java.util.List;
 import picocli.CommandLine;
@@ -40,7 +41,14 @@ public final class Main implements Runnable {
     CommandLine cl = commandLine(args.length == 0 ? null : args[0]);
     cl.setOut(out);
     cl.setErr(err);
-    return cl.execute(args);
+    try {
+      return cl.execute(args);
+    } finally {
+      // print() does not flush an auto-flushing writer: without this a long output (the
+      // completion script) was cut at the writer's buffer when the JVM exited into a pipe
+      out.flush();
+      err.flush();
+    }
   }
 
   /**
@@ -100,11 +108,23 @@ public final class Main implements Runnable {
     }
   }
 
+  /** The project's version (from the build) and the control-file protocol's. */
   static final class Version implements CommandLine.IVersionProvider {
     @Override
-    public String[] getVersion() {
-      String v = Main.class.getPackage().getImplementationVersion();
-      return new String[] {"stepwarden " + (v == null ? "development build" : v)};
+    public String[] getVersion() throws java.io.IOException {
+      return new String[] {"stepwarden " + projectVersion(),
+          "control protocol " + ControlFile.PROTOCOL
+              + " (the helpers of `stepwarden helper` follow the same)"};
+    }
+
+    /** Written into the resource by the build (resource filtering of the project version). */
+    static String projectVersion() throws java.io.IOException {
+      try (java.io.InputStream in = Main.class.getResourceAsStream("version.txt")) {
+        if (in == null) {
+          throw new java.io.IOException("version.txt is missing from this build");
+        }
+        return new String(in.readAllBytes(), java.nio.charset.StandardCharsets.UTF_8).strip();
+      }
     }
   }
 }

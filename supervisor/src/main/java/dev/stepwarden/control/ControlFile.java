@@ -22,11 +22,19 @@ import tools.jackson.databind.json.JsonMapper;
  * modification time. The supervisor never edits the file in place: it writes a sibling temporary
  * file, forces it to disk and renames it over the old one, so a trainer reads either the old or
  * the new revision, never half of one. Content:
- * {@code {"revision": 4, "learning_rate": 0.025, "guard": "flat-validation", "at_step": 41200}}.
+ * {@code {"revision": 4, "protocol": 1, "learning_rate": 0.025, "guard": "flat-validation",
+ * "at_step": 41200}}.
  * The trainer confirms by reporting the new rate or {@code "applied_revision": 4} in its output.
  */
 public final class ControlFile {
   private static final JsonMapper JSON = JsonMapper.builder().build();
+
+  /**
+   * The version of the control-file protocol, written into every control file as
+   * {@code "protocol"}; the shipped helpers carry the version they follow and warn when a file
+   * is newer. Raise it when the file's meaning changes in a way an older helper would misread.
+   */
+  public static final int PROTOCOL = 1;
 
   /** The key that asks the trainer to write a checkpoint now (its value: the revision). */
   public static final String CHECKPOINT_REQUEST_KEY = "checkpoint_request";
@@ -74,6 +82,7 @@ public final class ControlFile {
     long next = revision + 1;
     Map<String, Object> body = new LinkedHashMap<>();
     body.put("revision", next);
+    body.put("protocol", PROTOCOL);
     body.put("learning_rate", learningRate);
     body.put("guard", guard);
     body.put("at_step", atStep);

@@ -17,18 +17,24 @@ import java.util.regex.Pattern;
  * for (long step = 1; step <= steps; step++) {
  *   double lr = control.rate();              // one stat() per call; reads the file on change
  *   ... train one batch with lr ...
- *   System.out.println("{\"step\":" + step + ",\"loss\":" + loss + control.reportJson() + "}");
+ *   System.out.println("{\"step\":" + step + ",\"loss\":" + loss + control.confirmationJson() + "}");
  * }
  * }</pre>
  *
  * <p>The supervisor replaces the file named by {@code STEPWARDEN_CONTROL} atomically with
- * {@code {"revision": 4, "learning_rate": 0.025, ...}}; reporting {@code applied_revision}
- * confirms the change. A missing or invalid file keeps the last good rate. Not thread-safe.
+ * {@code {"revision": 4, "protocol": 1, "learning_rate": 0.025, ...}}; reporting
+ * {@code applied_revision} confirms the change. A missing or invalid file keeps the last good
+ * rate. A file of a newer control protocol than {@link #PROTOCOL} gives one warning on stderr:
+ * replace this copy with the output of {@code stepwarden helper java}. Not thread-safe.
  */
 public final class StepwardenControl {
+  /** The control-file protocol this copy follows; the supervisor writes it as "protocol". */
+  public static final int PROTOCOL = 1;
+
   private static final Pattern REVISION = number("revision");
   private static final Pattern RATE = number("learning_rate");
   private static final Pattern CHECKPOINT = number("checkpoint_request");
+  private static final Pattern PROTOCOL_KEY = number("protocol");
 
   private final Path path;
   private double rate;
@@ -37,6 +43,7 @@ public final class StepwardenControl {
   private long checkpointSeen;
   private boolean checkpointPending;
   private Object stamp;
+  private boolean protocolWarned;
 
   /** @param path the control file, or null when unsupervised (the rate stays {@code defaultRate}) */
   public StepwardenControl(Path path, double defaultRate) {
@@ -63,7 +70,7 @@ public final class StepwardenControl {
   }
 
   /** {@code ,"lr":R,"applied_revision":N} to append inside your JSON metric line. */
-  public String reportJson() {
+  public String confirmationJson() {
     return ",\"lr\":" + rate + (applied > 0 ? ",\"applied_revision\":" + applied : "");
   }
 
@@ -105,6 +112,13 @@ public final class StepwardenControl {
       return; // not a complete control file; the next change is looked at again
     }
     stamp = now;
+    Matcher p = PROTOCOL_KEY.matcher(text);
+    if (p.find() && Double.parseDouble(p.group(1)) > PROTOCOL && !protocolWarned) {
+      protocolWarned = true;
+      System.err.println("StepwardenControl: " + path + " is written in control protocol "
+          + p.group(1) + " but this copy of StepwardenControl.java follows protocol " + PROTOCOL
+          + ": replace it with the output of `stepwarden helper java`");
+    }
     long rev = (long) Double.parseDouble(r.group(1));
     double value = Double.parseDouble(lr.group(1));
     if (rev > revision && value > 0 && Double.isFinite(value)) {

@@ -7,15 +7,19 @@ Copy this one file next to your training script (`stepwarden helper python > ste
     for step, batch in enumerate(loader, 1):
         lr = control.rate()                    # cheap: one stat() call, the file is read on change
         for g in optimizer.param_groups: g["lr"] = lr
-        print(json.dumps({"step": step, "loss": loss, **control.report()}), flush=True)
+        print(json.dumps({"step": step, "loss": loss, **control.confirmation()}), flush=True)
 
 Protocol: the supervisor replaces the JSON file named by STEPWARDEN_CONTROL atomically (write, then
-rename) with {"revision": 4, "learning_rate": 0.025, ...}. `rate()` returns the newest rate;
-`report()` gives {"lr": ..., "applied_revision": ...} for your metric line, which is how the
-supervisor confirms the change. `checkpoint_requested()` is true once per request when the
+rename) with {"revision": 4, "protocol": 1, "learning_rate": 0.025, ...}. `rate()` returns the
+newest rate; `confirmation()` gives {"lr": ..., "applied_revision": ...} for your metric line,
+which is how the supervisor confirms the change. `checkpoint_requested()` is true once per request when the
 supervisor is about to be pre-empted and asks for a checkpoint now. Without STEPWARDEN_CONTROL
 (running unsupervised) everything still works and the rate stays `default_lr`. A missing,
 half-written or invalid file is ignored (the last good rate stays) with one warning on stderr.
+
+This copy follows control protocol PROTOCOL (`python3 stepwarden_control.py` prints it). A control
+file of a newer protocol gives one warning on stderr: regenerate this file with the supervisor
+that runs the job (`stepwarden --version` names its protocol).
 """
 
 import json
@@ -23,7 +27,10 @@ import os
 import sys
 import time
 
-__all__ = ["Control"]
+__all__ = ["Control", "PROTOCOL"]
+
+# The control-file protocol this copy follows; the supervisor writes it as "protocol".
+PROTOCOL = 1
 
 
 class Control:
@@ -33,7 +40,7 @@ class Control:
         """default_lr: the rate until the supervisor says otherwise.
         path: the control file (default: the STEPWARDEN_CONTROL environment variable).
         min_interval: seconds between two looks at the file (0: look on every call).
-        rate_key: the key report() uses for the rate, matching read.rate in the guard file."""
+        rate_key: the key confirmation() uses for the rate, matching read.rate in the guard file."""
         self._lr = float(default_lr)
         self._path = path if path is not None else os.environ.get("STEPWARDEN_CONTROL") or None
         self._min_interval = float(min_interval)
@@ -61,12 +68,18 @@ class Control:
         self._applied = self._revision
         return self._lr
 
-    def report(self):
+    def confirmation(self):
         """Keys to add to your metric line: the rate in use and the applied revision."""
         out = {self._rate_key: self._lr}
         if self._applied > 0:
             out["applied_revision"] = self._applied
         return out
+
+    def __getattr__(self, name):
+        if name == "report":  # the earlier name of confirmation(), refused with the new one
+            raise AttributeError("Control.report() is now Control.confirmation(): it gives the"
+                                 " keys that confirm a rate change on your metric line")
+        raise AttributeError(name)
 
     def checkpoint_requested(self):
         """True once for each checkpoint request of the supervisor (pre-emption): save now."""
@@ -105,6 +118,13 @@ class Control:
                 sys.stderr.write("stepwarden_control: ignoring %s: %s\n" % (self._path, e))
             return
         self._stamp = stamp
+        protocol = data.get("protocol", 1)
+        if isinstance(protocol, int) and protocol > PROTOCOL and "protocol" not in self._warned:
+            self._warned.add("protocol")
+            sys.stderr.write("stepwarden_control: %s is written in control protocol %d but this"
+                             " copy of stepwarden_control.py follows protocol %d: replace it with"
+                             " the output of `stepwarden helper python`\n"
+                             % (self._path, protocol, PROTOCOL))
         if revision > self._revision:
             self._revision = revision
             self._lr = lr
@@ -112,3 +132,7 @@ class Control:
             if isinstance(request, int) and request > self._checkpoint_seen:
                 self._checkpoint_seen = request
                 self._checkpoint_pending = True
+
+
+if __name__ == "__main__":
+    print("stepwarden_control control protocol %d" % PROTOCOL)

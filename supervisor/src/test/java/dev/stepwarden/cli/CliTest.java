@@ -95,6 +95,35 @@ class CliTest {
     assertThat(r.out()).contains("complete -F").contains("stepwarden");
   }
 
+  @Test
+  void completionPipedIntoBashFromAChildJvmArrivesWholeAndParses(@TempDir Path tmp)
+      throws Exception {
+    // the script is longer than the writer's buffer: before the flush at exit it was cut
+    String java = ChildJvm.java();
+    String cmd = "'" + java + "' -cp '" + System.getProperty("java.class.path")
+        + "' dev.stepwarden.cli.Main completion";
+    for (String shell : new String[] {"", " --shell zsh"}) {
+      Process p = new ProcessBuilder("/bin/sh", "-c", cmd + shell + " | tee script | bash -n")
+          .directory(tmp.toFile()).redirectErrorStream(true).start();
+      String out = new String(p.getInputStream().readAllBytes());
+      assertThat(p.waitFor()).as(out).isZero();
+      String script = Files.readString(tmp.resolve("script"));
+      assertThat(script.length()).isGreaterThan(16_384);
+      assertThat(script).endsWith(run(("completion" + shell).split(" ")).out());
+    }
+  }
+
+  @Test
+  void versionNamesTheProjectVersionAndTheControlProtocol() throws Exception {
+    Out r = run("--version");
+    assertThat(r.code()).isZero();
+    String pom = Files.readString(Path.of("pom.xml"));
+    String version = pom.replaceFirst("(?s).*?<parent>.*?<version>([^<]+)</version>.*", "$1");
+    assertThat(r.out()).startsWith("stepwarden " + version + "\n")
+        .contains("control protocol " + dev.stepwarden.control.ControlFile.PROTOCOL);
+    assertThat(run("run", "--version").out()).isEqualTo(r.out());
+  }
+
   /** The guard-file sketch of the product brief, as a test fixture. */
   static final class GuardFilesSketch {
     static final String TEXT = String.join("\n",
