@@ -76,7 +76,7 @@ public class ParserBench {
   private final PairsLineParser pairs = new PairsLineParser();
   private MetricsIntake intake;
   private MetricsIntake guarded;
-  private dev.stepwarden.rules.GuardEngine engine;
+  private dev.stepwarden.engine.GuardEngine engine;
   private int i;
   private String[] pairLines;
 
@@ -96,7 +96,7 @@ public class ParserBench {
         "    do: stop",
         "").getBytes(java.nio.charset.StandardCharsets.UTF_8), java.nio.file.Path.of("bench.yaml"));
     guarded = new MetricsIntake(rules.read());
-    engine = new dev.stepwarden.rules.GuardEngine(rules);
+    engine = new dev.stepwarden.engine.GuardEngine(rules);
     pairLines = new String[64];
     for (int k = 0; k < 64; k++) {
       pairLines[k] = SHORT[k].replaceAll("[{}\"]", "").replace(": ", "=").replace(",", "");

@@ -279,7 +279,7 @@ public final class QueuedRun implements Job {
       }
 
       @Override
-      public void onDecision(dev.stepwarden.rules.Decision decision) {
+      public void onDecision(dev.stepwarden.engine.Decision decision) {
         copy.forEach(o -> o.onDecision(decision));
       }
 

@@ -2,8 +2,8 @@ package dev.stepwarden.replay;
 
 import dev.stepwarden.metrics.MetricsIntake;
 import dev.stepwarden.metrics.ReadPlan;
-import dev.stepwarden.rules.Decision;
-import dev.stepwarden.rules.GuardEngine;
+import dev.stepwarden.engine.Decision;
+import dev.stepwarden.engine.GuardEngine;
 import dev.stepwarden.rules.GuardFile;
 import java.io.BufferedReader;
 import java.io.IOException;

@@ -1,6 +1,6 @@
 package dev.stepwarden.replay;
 
-import dev.stepwarden.rules.Decision;
+import dev.stepwarden.engine.Decision;
 import java.time.Instant;
 import java.time.ZoneOffset;
 import java.time.format.DateTimeFormatter;

@@ -1,5 +1,6 @@
 package dev.stepwarden.rules;
 
+import dev.stepwarden.stats.Prechelt;
 import java.util.LinkedHashMap;
 import java.util.List;
 import java.util.Map;

@@ -5,7 +5,7 @@ import dev.stepwarden.metrics.MetricsSources;
 import dev.stepwarden.metrics.ReadPlan;
 import dev.stepwarden.metrics.Sample;
 import dev.stepwarden.rules.GuardFile;
-import dev.stepwarden.rules.RangeTest;
+import dev.stepwarden.stats.RangeTest;
 import java.util.ArrayList;
 import java.util.List;
 

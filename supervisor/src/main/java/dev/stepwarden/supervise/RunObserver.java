@@ -1,7 +1,7 @@
 package dev.stepwarden.supervise;
 
 import dev.stepwarden.metrics.Sample;
-import dev.stepwarden.rules.Decision;
+import dev.stepwarden.engine.Decision;
 
 /**
  * Read-only hooks into a supervised run, for telemetry and live views. Called on supervisor

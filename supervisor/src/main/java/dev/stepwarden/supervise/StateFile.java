@@ -1,7 +1,7 @@
 package dev.stepwarden.supervise;
 
 import dev.stepwarden.checkpoints.CheckpointLedger;
-import dev.stepwarden.rules.GuardEngineState;
+import dev.stepwarden.engine.GuardEngineState;
 import dev.stepwarden.rules.GuardFile;
 import java.io.IOException;
 import java.nio.ByteBuffer;

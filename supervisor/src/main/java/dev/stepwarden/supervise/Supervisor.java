@@ -14,8 +14,8 @@ import dev.stepwarden.process.LineBatchListener;
 import dev.stepwarden.process.StopResult;
 import dev.stepwarden.process.TrainerProcess;
 import dev.stepwarden.process.TrainerStream;
-import dev.stepwarden.rules.Decision;
-import dev.stepwarden.rules.GuardEngine;
+import dev.stepwarden.engine.Decision;
+import dev.stepwarden.engine.GuardEngine;
 import dev.stepwarden.rules.GuardFile;
 import dev.stepwarden.rules.GuardFiles;
 import java.io.IOException;
@@ -413,7 +413,7 @@ public final class Supervisor {
       generation++;
       probing = null;
       rp.close();
-      dev.stepwarden.rules.RangeTest.Reading r = rp.reading();
+      dev.stepwarden.stats.RangeTest.Reading r = rp.reading();
       double rate = rules.run().learningRate();
       if (r.found()) {
         rate = Math.min(rules.limits().maxRate(), Math.max(rules.limits().minRate(), r.pick()));

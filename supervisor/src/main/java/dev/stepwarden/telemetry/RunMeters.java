@@ -1,7 +1,7 @@
 package dev.stepwarden.telemetry;
 
 import dev.stepwarden.metrics.Sample;
-import dev.stepwarden.rules.Decision;
+import dev.stepwarden.engine.Decision;
 import dev.stepwarden.rules.GuardFile;
 import dev.stepwarden.supervise.RunObserver;
 import dev.stepwarden.supervise.Supervisor;

@@ -5,7 +5,7 @@ import dev.stepwarden.process.LineBatch;
 import dev.stepwarden.process.LineBatchListener;
 import dev.stepwarden.process.TrainerProcess;
 import dev.stepwarden.process.TrainerStream;
-import dev.stepwarden.rules.GuardEngine;
+import dev.stepwarden.engine.GuardEngine;
 import dev.stepwarden.rules.GuardFile;
 import dev.stepwarden.rules.GuardFiles;
 import java.nio.charset.StandardCharsets;

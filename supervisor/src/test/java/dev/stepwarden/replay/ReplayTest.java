@@ -230,7 +230,7 @@ class ReplayTest {
       // (what the supervisor's pump does per line, minus the pipe and the normalized write).
       dev.stepwarden.metrics.MetricsIntake intake = new dev.stepwarden.metrics.MetricsIntake(
           Replay.normalizedPlan(rules.read()));
-      dev.stepwarden.rules.GuardEngine engine = new dev.stepwarden.rules.GuardEngine(rules);
+      dev.stepwarden.engine.GuardEngine engine = new dev.stepwarden.engine.GuardEngine(rules);
       long t0 = System.nanoTime();
       for (String l : lines) {
         var reading = intake.accept(l, 0);

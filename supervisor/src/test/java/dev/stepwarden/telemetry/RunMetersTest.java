@@ -3,8 +3,8 @@ package dev.stepwarden.telemetry;
 import static org.assertj.core.api.Assertions.assertThat;
 
 import dev.stepwarden.metrics.Sample;
-import dev.stepwarden.rules.Decision;
-import dev.stepwarden.rules.Evidence;
+import dev.stepwarden.engine.Decision;
+import dev.stepwarden.detectors.Evidence;
 import dev.stepwarden.rules.GuardFile;
 import io.micrometer.prometheusmetrics.PrometheusMeterRegistry;
 import java.util.List;
