@@ -9,7 +9,6 @@ import java.util.Objects;
 import java.util.Set;
 import java.util.TreeSet;
 import java.util.function.LongSupplier;
-import java.util.regex.Matcher;
 import java.util.regex.Pattern;
 
 /**
@@ -143,7 +142,7 @@ public final class MetricsIntake {
     return switch (plan.format()) {
       case JSON -> new JsonLineParser();
       case PAIRS -> new PairsLineParser();
-      case PATTERN -> new PatternLineParser(plan.pattern(), groupNames(plan.pattern()));
+      case PATTERN -> new PatternLineParser(plan.pattern());
       case CSV -> new CsvLineParser();
     };
   }
@@ -414,14 +413,5 @@ public final class MetricsIntake {
   /** Keys seen in metric lines (up to 256), sorted, for the "never appeared" warning. */
   public List<String> keysSeen() {
     return List.copyOf(new TreeSet<>(keysSeen));
-  }
-
-  private static List<String> groupNames(Pattern p) {
-    List<String> names = new ArrayList<>();
-    Matcher m = Pattern.compile("\\(\\?<([a-zA-Z][a-zA-Z0-9]*)>").matcher(p.pattern());
-    while (m.find()) {
-      names.add(m.group(1));
-    }
-    return names;
   }
 }

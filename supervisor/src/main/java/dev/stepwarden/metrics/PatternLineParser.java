@@ -1,11 +1,12 @@
 package dev.stepwarden.metrics;
 
-import java.util.List;
+import java.util.Map;
 import java.util.regex.Matcher;
 import java.util.regex.Pattern;
 
 /**
- * The user's regular expression; each named group that holds a number becomes a key. Lines
+ * The user's regular expression; each named group that holds a number fills its key (see
+ * {@link MetricPatterns}: a group's name in the compiled pattern may stand for the key). Lines
  * longer than {@link #MAX_CHARS} are passed over: a pattern that backtracks badly on a long line
  * would otherwise stall the pump thread (metric lines are short; such lines are counted ignored).
  */
@@ -13,11 +14,14 @@ final class PatternLineParser implements LineParser {
   static final int MAX_CHARS = 64 * 1024;
 
   private final Pattern pattern;
-  private final List<String> groups;
+  private final String[] groups;
+  private final String[] keys;
 
-  PatternLineParser(Pattern pattern, List<String> groups) {
+  PatternLineParser(Pattern pattern) {
     this.pattern = pattern;
-    this.groups = List.copyOf(groups);
+    Map<String, String> byGroup = MetricPatterns.keysByGroup(pattern);
+    this.groups = byGroup.keySet().toArray(new String[0]);
+    this.keys = byGroup.values().toArray(new String[0]);
   }
 
   @Override
@@ -30,7 +34,8 @@ final class PatternLineParser implements LineParser {
       return false;
     }
     boolean any = false;
-    for (String g : groups) {
+    for (int k = 0; k < groups.length; k++) {
+      String g = groups[k];
       int from;
       int to;
       try {
@@ -50,7 +55,7 @@ final class PatternLineParser implements LineParser {
       }
       double v = Decimals.parse(line, from, to);
       if (!Decimals.failed(v)) {
-        out.put(g, v);
+        out.put(keys[k], v);
         any = true;
       }
     }

@@ -50,7 +50,8 @@ final class Catalogue {
               + " words; pattern: your regular expression with named groups; csv: a header line"
               + " naming the columns, then rows."),
       Key.text("pattern", null, "The regular expression for format: pattern, with a named group"
-          + " per key, e.g. (?<step>\\d+).*loss (?<loss>\\S+)."),
+          + " per key, the trainer's key as its name, in Python's or Java's syntax, e.g."
+          + " (?P<step>\\d+).*val_loss (?P<val_loss>\\S+)."),
       Key.text("step", "step", "The trainer's key for the step counter."),
       Key.text("epoch", "epoch", "The trainer's key for the epoch."),
       Key.text("rate", "lr", "The trainer's key for the learning rate it is using."),

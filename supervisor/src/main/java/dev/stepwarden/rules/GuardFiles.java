@@ -1,5 +1,6 @@
 package dev.stepwarden.rules;
 
+import dev.stepwarden.metrics.MetricPatterns;
 import dev.stepwarden.metrics.ReadPlan;
 import dev.stepwarden.rules.ConfigNode.ListNode;
 import dev.stepwarden.rules.ConfigNode.MapNode;
@@ -19,7 +20,6 @@ import java.util.Optional;
 import java.util.Set;
 import java.util.regex.Matcher;
 import java.util.regex.Pattern;
-import java.util.regex.PatternSyntaxException;
 
 /**
  * Loads guard files strictly: every key is known, every value typed and in range, every refusal
@@ -150,10 +150,9 @@ public final class GuardFiles {
             "format: pattern needs a 'pattern' key with a regular expression in " + where);
       }
       try {
-        pattern = Pattern.compile(patternText);
-      } catch (PatternSyntaxException e) {
-        throw fail(node.entries.get("pattern"), "the pattern is not a valid regular expression ("
-            + e.getDescription() + " near index " + e.getIndex() + ")");
+        pattern = MetricPatterns.compile(patternText);
+      } catch (MetricPatterns.BadPattern e) {
+        throw fail(node.entries.get("pattern"), e.getMessage());
       }
     } else if (patternText != null) {
       throw fail(node.entries.get("pattern"),
@@ -164,26 +163,18 @@ public final class GuardFiles {
       series = new LinkedHashMap<>(defaultSeries);
     }
     if (pattern != null) {
-      Set<String> groups = namedGroups(patternText);
+      List<String> groups = MetricPatterns.keys(pattern);
       for (Map.Entry<String, String> e : series.entrySet()) {
         if (!groups.contains(e.getValue())) {
-          throw fail(node.entries.get("pattern"), "the pattern has no named group (?<"
-              + e.getValue() + ">...) for series '" + e.getKey() + "'; groups found: " + groups);
+          throw fail(node.entries.get("pattern"), "the pattern has no named group (?P<"
+              + e.getValue() + ">...) for series '" + e.getKey() + "'; groups found: " + groups
+              + GuardFiles.suggestion(e.getValue(), groups));
         }
       }
     }
     return new ReadPlan(source, fileName == null ? null : Path.of(fileName), format, pattern,
         (String) v.get("step"), (String) v.get("epoch"), (String) v.get("rate"), series,
         lineLimit, also);
-  }
-
-  private static Set<String> namedGroups(String regex) {
-    Set<String> names = new HashSet<>();
-    Matcher m = Pattern.compile("\\(\\?<([a-zA-Z][a-zA-Z0-9]*)>").matcher(regex);
-    while (m.find()) {
-      names.add(m.group(1));
-    }
-    return names;
   }
 
   private GuardFile.Steer steer(MapNode node) throws ConfigException {

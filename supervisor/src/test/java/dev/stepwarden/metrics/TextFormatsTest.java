@@ -39,7 +39,7 @@ class TextFormatsTest {
   @Test
   void patternReadsNamedGroupsThatHoldNumbers() {
     PatternLineParser p = new PatternLineParser(
-        Pattern.compile("it (?<step>\\d+): loss (?<loss>\\S+)"), java.util.List.of("step", "loss"));
+        Pattern.compile("it (?<step>\\d+): loss (?<loss>\\S+)"));
     assertThat(Fieldset.parse(p, "[info] it 400: loss 0.125 (best)")).containsExactly(
         entry("step", 400.0), entry("loss", 0.125));
     assertThat(Fieldset.parse(p, "it 401: loss nan").get("loss")).isNaN();

@@ -64,4 +64,19 @@ class GuardFilesReadTest {
     assertThat(g.read().also()).isEmpty();
     assertThat(g.read().lineLimit()).isEqualTo(ReadPlan.DEFAULT_LINE_LIMIT);
   }
+
+  @Test
+  void aPatternWithPythonGroupsNamedByTheTrainersKeysLoadsAndFeedsItsSeries() throws Exception {
+    GuardFile g = GuardFilesTest.parse(HEAD + "read:\n  format: pattern\n"
+        + "  pattern: 'step (?P<step>\\d+) loss (?P<loss>\\S+)( val_loss (?P<val_loss>\\S+))?'\n"
+        + "  series: { train: loss, validation: val_loss }\n");
+    dev.stepwarden.metrics.MetricsIntake in = new dev.stepwarden.metrics.MetricsIntake(g.read());
+    assertThat(in.accept("step 40 loss 0.7 val_loss 0.9", 0).sample().values())
+        .containsEntry("train", 0.7).containsEntry("validation", 0.9);
+    assertThat(GuardFilesTest.refusal(HEAD + "read:\n  format: pattern\n"
+        + "  pattern: 'loss (?P<loss>\\S+) (?P<valloss>\\S+)'\n"
+        + "  series: { train: loss, validation: val_loss }\n").getMessage())
+        .contains("no named group (?P<val_loss>...) for series 'validation'")
+        .contains("did you mean 'valloss'?");
+  }
 }
