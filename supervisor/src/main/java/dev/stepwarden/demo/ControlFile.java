@@ -70,12 +70,6 @@ final class ControlFile {
     return instruction != null && instruction.revision() > appliedRevision ? instruction : null;
   }
 
-  /** Reads the file now, changed or not; null if missing or invalid (warned as by {@link #poll}). */
-  Instruction current() {
-    lastStamp = null;
-    return poll(Long.MIN_VALUE);
-  }
-
   private Object stamp() {
     try {
       BasicFileAttributes a = Files.readAttributes(path, BasicFileAttributes.class);

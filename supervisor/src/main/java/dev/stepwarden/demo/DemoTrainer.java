@@ -40,9 +40,9 @@ import java.util.Map;
  *       and training goes on (the supervisor decides). Diagnostics go to stderr.
  *   <li><b>Control</b>: before each step the file named by {@code STEPWARDEN_CONTROL} is polled
  *       ({@link ControlFile}); a newer revision switches the rate for that very step, and the lines
- *       from then on carry {@code "applied_revision"}. On {@code --resume} with an explicit
- *       {@code --lr}, the command line is the newer word: a revision already in the file at start
- *       counts as taken in and only later revisions change the rate.
+ *       from then on carry {@code "applied_revision"}. A revision newer than the one a resumed
+ *       checkpoint applied wins over {@code --lr}, as for any trainer that follows the protocol:
+ *       the supervisor publishes the rate of every launch before it starts the trainer.
  *   <li><b>Checkpoints</b>: after each evaluation the full state goes to {@code DIR/last.ckpt}
  *       (temp file + rename) and {@code DIR/step-NNNNNN.ckpt} ({@link Checkpoint}). {@code
  *       --resume} continues the step axis from the checkpoint; {@code --skip-batches} advances the
@@ -260,14 +260,6 @@ public final class DemoTrainer {
         throw new IOException("cannot create checkpoint directory " + dir + ": " + reason(e), e);
       }
       ControlFile control = controlFile();
-      if (control != null && resumed != null && o.given.contains("lr")) {
-        ControlFile.Instruction standing = control.current();
-        if (standing != null && standing.revision() > t.controlRevision) {
-          err.println(NAME + ": control revision " + standing.revision() + " predates this restart;"
-              + " the command line's --lr " + o.lr + " wins, later revisions apply");
-          t.controlRevision = standing.revision();
-        }
-      }
       describeStart(t, split, all);
       String source = dataSource();
       long appliedHere = 0; // revision applied by this process, echoed on every line after

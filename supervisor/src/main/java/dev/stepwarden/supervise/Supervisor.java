@@ -144,9 +144,9 @@ public final class Supervisor {
   }
 
   private sealed interface Request {
-    record End(Decision decision) implements Request {}
+    record End(Decision decision, Long decisionSeq) implements Request {}
 
-    record Relaunch(String reason, Decision decision, long targetStep, int skipBatches,
+    record Relaunch(String reason, Long decisionSeq, long targetStep, int skipBatches,
         boolean fromCheckpoint) implements Request {}
 
     record Preempt(String why) implements Request {}
@@ -183,7 +183,21 @@ public final class Supervisor {
   private volatile TrainerProcess trainer;
   private volatile boolean finished;
   private volatile boolean interrupted;
+  /** The signal that interrupted the run (SIGTERM ends with 143, anything else with 130). */
+  private volatile String interruptedBy;
+  /** Counted down by {@link #interrupt}: a crash back-off waits on it, not on a plain sleep. */
+  private final java.util.concurrent.CountDownLatch stopRequested =
+      new java.util.concurrent.CountDownLatch(1);
   private int generation;
+  /**
+   * The newest generation whose follow-up is decided (a rewind, a restart, an ending): its
+   * remaining lines are logged and written, never judged again, and nothing else follows it.
+   */
+  private int endedGeneration;
+  /** The follow-up decided for the live generation, saved so a resume carries it out. */
+  private Planned planned;
+  /** The last rate the live generation reported (NaN: none yet). */
+  private double reportedRate = Double.NaN;
   private int attempt;
   private int crashRestarts;
   private int interventions;
@@ -202,7 +216,15 @@ public final class Supervisor {
   /** Non-null while the rate probe's throw-away launch runs. */
   private RateProbe probing;
 
-  private record Pending(long revision, double rate, long sinceMillis, long decisionSeq) {}
+  /**
+   * A rate the trainer has yet to confirm. {@code atLaunch}: published for a launch, whose clock
+   * starts at the generation's first metric (start-up time is not the trainer's to control).
+   */
+  private record Pending(long revision, double rate, long sinceMillis, Long decisionSeq,
+      boolean atLaunch, boolean afterFallback) {}
+
+  /** A decided relaunch, kept in state.json until the launch happened. */
+  private record Planned(String reason, long targetStep, int skipBatches) {}
 
   public Supervisor(GuardFile rules, Options options) {
     if (rules.run().command().isEmpty()) {
@@ -258,7 +280,12 @@ public final class Supervisor {
       prepareResume();
     }
     try {
-      launch(resumed == null ? "start" : "resume", 0);
+      if (interrupted) {
+        return interruptedBeforeLaunch();
+      }
+      Planned plan = planned;
+      launch(resumed == null ? "start" : "resume",
+          plan == null ? 0 : plan.skipBatches(), null, null);
       return loop();
     } catch (IOException e) {
       // The run directory failed us (a full disk, most often): without an audit log the run
@@ -270,6 +297,14 @@ public final class Supervisor {
     } finally {
       finished = true;
       closeQuietly();
+    }
+  }
+
+  /** A signal came before any trainer ran (start-up, probe, back-off): end without one. */
+  private Result interruptedBeforeLaunch() throws IOException {
+    synchronized (lock) {
+      return result(RunOutcome.INTERRUPTED, "interrupted by a signal before the run's trainer"
+          + " was launched");
     }
   }
 
@@ -315,7 +350,9 @@ public final class Supervisor {
     } catch (IOException e) {
       options.console().println("stepwarden: " + e.getMessage());
     }
+    interruptedBy = signal;
     interrupted = true;
+    stopRequested.countDown();
     TrainerProcess t = trainer;
     if (t != null) {
       t.stop();
@@ -371,7 +408,6 @@ public final class Supervisor {
       ledger.baseline(); // an earlier run's files: their step is unknown
     }
     metricsOut = NormalizedWriter.append(dir.privateFile(RunDirectory.METRICS));
-    control.publish(engine.rate(), "(start)", 0);
     Map<String, Object> f = new LinkedHashMap<>();
     f.put("name", rules.run().name());
     f.put("command", rules.run().command());
@@ -395,9 +431,11 @@ public final class Supervisor {
     RateProbe rp = new RateProbe(p, rules.read());
     synchronized (lock) {
       probing = rp;
-      control.publish(rp.rate(), "(probe)", 0);
     }
-    launch("rate probe", 0);
+    if (interrupted) {
+      return;
+    }
+    launch("rate probe", 0, rp.rate(), null);
     while (true) {
       synchronized (lock) {
         if (rp.done() || interrupted) {
@@ -432,7 +470,6 @@ public final class Supervisor {
       f.put("levels", rp.levels());
       audit.append("probe", f);
       say("rate probe: " + r.note());
-      control.publish(rate, "(probe result)", 0);
       if (ledger != null) {
         ledger.baseline();
       }
@@ -457,7 +494,7 @@ public final class Supervisor {
         try {
           handle(source, line, cut);
         } catch (IOException e) {
-          requests.add(new Request.End(null));
+          requests.add(new Request.End(null, null));
           options.console().println("stepwarden: " + e.getMessage());
         }
       }
@@ -494,7 +531,15 @@ public final class Supervisor {
       ledger.restore(entries, seen);
     }
     metricsOut = NormalizedWriter.append(dir.privateFile(RunDirectory.METRICS));
-    Optional<CheckpointLedger.Entry> target = chooseTarget(Long.MAX_VALUE);
+    JsonNode plan = st.path("planned_relaunch");
+    if (plan.isObject()) {
+      // Killed between a decision and its relaunch: carry out what was decided, from the target
+      // chosen then (not from a checkpoint written after the trouble began).
+      planned = new Planned(plan.path("reason").asString("resume"),
+          plan.path("target_step").asLong(Long.MAX_VALUE), plan.path("skip_batches").asInt());
+    }
+    Optional<CheckpointLedger.Entry> target = chooseTarget(
+        planned == null ? Long.MAX_VALUE : planned.targetStep());
     resumeFrom = target.map(e -> e.usable().toString()).orElse("");
     ledgerInUse(target);
     currentStep = target.map(CheckpointLedger.Entry::step).orElse(-1L);
@@ -514,6 +559,7 @@ public final class Supervisor {
     f.put("crash_restarts_before", crashRestarts);
     f.put("resume_from", resumeFrom.isEmpty() ? null : resumeFrom);
     f.put("resume_step", target.map(CheckpointLedger.Entry::step).orElse(null));
+    f.put("planned_relaunch", planned == null ? null : planned.reason());
     f.put("result", target.isPresent() ? "continuing from the vault checkpoint of step "
         + target.get().step() : "no healthy checkpoint: starting again from scratch at the saved"
         + " rate");
@@ -593,6 +639,13 @@ public final class Supervisor {
     m.put("control_revision", control.revision());
     m.put("last_step", currentStep);
     m.put("resume_from", resumeFrom);
+    if (planned != null) {
+      Map<String, Object> p = new LinkedHashMap<>();
+      p.put("reason", planned.reason());
+      p.put("target_step", planned.targetStep());
+      p.put("skip_batches", planned.skipBatches());
+      m.put("planned_relaunch", p);
+    }
     m.put("engine", StateFile.engine(engine.snapshot()));
     if (ledger != null) {
       Map<String, Object> l = new LinkedHashMap<>();
@@ -607,11 +660,29 @@ public final class Supervisor {
     stateSavedMillis = clock.millis();
   }
 
-  private void launch(String reason, int skipBatches) throws IOException {
+  /**
+   * Starts a generation: publishes its rate to the control file (forced to disk) first, so that
+   * whatever the trainer reads at its start is the rate of this launch, and the same rate goes
+   * into {@code {learning_rate}}; then expects the trainer to confirm it.
+   *
+   * @param probeRate the rate probe's first rate for the probe's launch, else null
+   * @param decisionSeq the decision this launch carries out, if any
+   */
+  private void launch(String reason, int skipBatches, Double probeRate, Long decisionSeq)
+      throws IOException {
     attempt++;
     int gen = ++generation;
+    double rate = probeRate == null ? engine.rate() : probeRate;
+    if (probeRate == null) {
+      engine.beginGeneration(Math.max(currentStep, 0), resumeFrom.isEmpty());
+    }
+    long revision = control.publish(rate, probeRate == null ? "(launch " + attempt + ")"
+        : "(probe)", Math.max(currentStep, 0));
+    reportedRate = Double.NaN;
+    pending = probeRate == null ? new Pending(revision, rate, -1, decisionSeq, true,
+        "change not confirmed".equals(reason)) : null;
     Map<String, String> values = new LinkedHashMap<>();
-    values.put("learning_rate", formatRate(engine.rate()));
+    values.put("learning_rate", formatRate(rate));
     values.put("resume_from", resumeFrom);
     values.put("skip_batches", Integer.toString(skipBatches));
     values.put("attempt", Integer.toString(attempt));
@@ -653,11 +724,13 @@ public final class Supervisor {
     f.put("reason", reason);
     f.put("pid", trainer.pid());
     f.put("argv", argv);
-    f.put("learning_rate", engine.rate());
+    f.put("learning_rate", rate);
+    f.put("control_revision", revision);
     f.put("resume_from", resumeFrom);
     f.put("skip_batches", skipBatches);
     audit.append("launch", f);
     lastMetricMillis = clock.millis();
+    planned = null; // carried out: a resume from here on continues this launch
     saveState(false, null);
     options.observer().onLaunch(attempt, reason);
   }
@@ -722,11 +795,11 @@ public final class Supervisor {
           }
           for (int i : sources) {
             handle(i, intake.accept(i, lines.bytes(), lines.offset(k), lines.length(k), now,
-                lines.cut(k)), now);
+                lines.cut(k)), now, gen);
           }
         }
       } catch (IOException e) {
-        requests.add(new Request.End(null));
+        requests.add(new Request.End(null, null));
         options.console().println("stepwarden: " + e.getMessage());
       }
     }
@@ -741,20 +814,45 @@ public final class Supervisor {
 
   private void handle(int source, String line, boolean cut) throws IOException {
     long now = clock.millis();
-    handle(source, intake.accept(source, line, now, cut), now);
+    // A followed file's line belongs to the generation live when it is read.
+    handle(source, intake.accept(source, line, now, cut), now, generation);
   }
 
-  private void handle(int source, MetricsIntake.Reading r, long now) throws IOException {
+  /** Whether the generation's lines may still drive decisions (its follow-up is not decided). */
+  private boolean judging(int gen) {
+    return gen == generation && gen > endedGeneration;
+  }
+
+  /** Marks the live generation as ended: exactly one follow-up, already queued, comes next. */
+  private void endGeneration(Planned plan) throws IOException {
+    endedGeneration = generation;
+    pending = null;
+    planned = plan;
+    saveState(false, null);
+  }
+
+  private void handle(int source, MetricsIntake.Reading r, long now, int gen)
+      throws IOException {
     if (r == null) {
       warnMissingKeys();
       return;
     }
-    if (pending != null && confirms(r)) {
+    boolean judge = judging(gen);
+    if (judge && r.hasRate()) {
+      reportedRate = r.reportedRate();
+    }
+    if (judge && pending != null && pending.atLaunch() && pending.sinceMillis() < 0
+        && r.sample() != null) {
+      pending = new Pending(pending.revision(), pending.rate(), now, pending.decisionSeq(), true,
+          pending.afterFallback()); // the confirmation clock starts at the first metric
+    }
+    if (judge && pending != null && confirms(r)) {
       Map<String, Object> f = new LinkedHashMap<>();
       f.put("decision_seq", pending.decisionSeq());
+      f.put("for", pending.atLaunch() ? "launch " + attempt : "live change");
       f.put("revision", pending.revision());
       f.put("learning_rate", pending.rate());
-      f.put("after_ms", now - pending.sinceMillis());
+      f.put("after_ms", now - Math.max(0, pending.sinceMillis()));
       f.put("by", r.hasRevision() && r.appliedRevision() >= pending.revision()
           ? "applied_revision" : "reported rate");
       audit.append("confirmed", f);
@@ -781,7 +879,8 @@ public final class Supervisor {
     }
     writeNormalized(source, s);
     warnMissingKeys();
-    Optional<Decision> d = engine.onSample(s);
+    // An ended generation's lines are written, never judged: its follow-up is already decided.
+    Optional<Decision> d = judge ? engine.onSample(s) : Optional.empty();
     RunObserver o = options.observer();
     if (o != RunObserver.NONE) {
       o.onSample(s, engine.rate());
@@ -825,19 +924,20 @@ public final class Supervisor {
     say("step " + d.step() + ": guard '" + d.guard() + "' fired: " + d.evidence().summary()
         + (d.changesRate() ? "; rate " + d.rateBefore() + " -> " + d.rateAfter() : ""));
     if (d.ending() != Decision.Ending.CONTINUE) {
-      requests.add(new Request.End(d));
+      endGeneration(null);
+      requests.add(new Request.End(d, seq));
       return;
     }
     if (d.rewinds()) {
-      long target = onsetStep(d);
-      requests.add(new Request.Relaunch("rewind", d, target, d.skipBatches(), true));
+      relaunchLater(new Request.Relaunch("rewind", seq, onsetStep(d), d.skipBatches(), true));
       return;
     }
     if (!d.changesRate()) {
       return;
     }
     if (rules.steer().by() == GuardFile.Steer.Method.RESTART) {
-      requests.add(new Request.Relaunch("new rate by restart", d, intake.lastStep(), 0, true));
+      relaunchLater(new Request.Relaunch("new rate by restart", seq, intake.lastStep(), 0,
+          true));
       return;
     }
     long revision = control.publish(d.rateAfter(), d.guard(), d.step());
@@ -847,8 +947,14 @@ public final class Supervisor {
     f.put("revision", revision);
     f.put("learning_rate", d.rateAfter());
     audit.append("outcome", f);
-    pending = new Pending(revision, d.rateAfter(), clock.millis(), seq);
+    pending = new Pending(revision, d.rateAfter(), clock.millis(), seq, false, false);
     saveState(false, null);
+  }
+
+  /** Ends the live generation with a relaunch: state first (a resume carries it out), then it. */
+  private void relaunchLater(Request.Relaunch rl) throws IOException {
+    endGeneration(new Planned(rl.reason(), rl.targetStep(), rl.skipBatches()));
+    requests.add(rl);
   }
 
   private static long onsetStep(Decision d) {
@@ -901,8 +1007,10 @@ public final class Supervisor {
           : requests.poll();
       if (interrupted) {
         StopResult stop = trainer.stop(); // idempotent: waits for the hook's stop to finish
-        return result(RunOutcome.INTERRUPTED, "interrupted by a signal; the trainer was "
-            + (stop.killed() ? "killed after the grace" : "stopped"));
+        synchronized (lock) {
+          return result(RunOutcome.INTERRUPTED, "interrupted by a signal; the trainer was "
+              + (stop.killed() ? "killed after the grace" : "stopped"));
+        }
       }
       if (req instanceof Request.End end) {
         return end(end.decision());
@@ -1024,21 +1132,12 @@ public final class Supervisor {
       if (currentStep != stateSavedStep && now - stateSavedMillis >= STATE_EVERY_MILLIS) {
         saveState(false, null);
       }
-      if (pending != null && now - pending.sinceMillis() > rules.steer().confirmWithin().toMillis()) {
-        Map<String, Object> f = new LinkedHashMap<>();
-        f.put("decision_seq", pending.decisionSeq());
-        f.put("revision", pending.revision());
-        f.put("learning_rate", pending.rate());
-        f.put("waited_ms", now - pending.sinceMillis());
-        f.put("fallback", rules.steer().restartWhenUnconfirmed() ? "restart" : "none");
-        audit.append("not-confirmed", f);
-        say("the trainer did not confirm rate " + pending.rate() + " within "
-            + rules.steer().confirmWithin().toSeconds() + " s");
-        pending = null;
-        if (rules.steer().restartWhenUnconfirmed()) {
-          requests.add(new Request.Relaunch("change not confirmed", null, intake.lastStep(), 0,
-              true));
-        }
+      if (endedGeneration == generation) {
+        return; // the follow-up is decided: nothing of this generation is judged any more
+      }
+      if (pending != null && pending.sinceMillis() >= 0
+          && now - pending.sinceMillis() > rules.steer().confirmWithin().toMillis()) {
+        notConfirmed(now);
       }
       Duration silence = metricSinceLaunch ? rules.limits().silence()
           : rules.limits().startupSilence();
@@ -1053,12 +1152,41 @@ public final class Supervisor {
             + (now - lastMetricMillis) / 1000 + " s: treating the trainer as hung");
         lastMetricMillis = now;
         if (crashRestarts >= rules.limits().crashRestarts()) {
-          requests.add(new Request.End(null));
+          endGeneration(null);
+          requests.add(new Request.End(null, null));
         } else {
           crashRestarts++;
-          requests.add(new Request.Relaunch("hang", null, intake.lastStep(), 0, true));
+          relaunchLater(new Request.Relaunch("hang", null, intake.lastStep(), 0, true));
         }
       }
+    }
+  }
+
+  /**
+   * The trainer did not confirm the pending rate in time: says so with both rates and applies
+   * {@code steer.unconfirmed}. A restart that was itself the fallback is not repeated, and a
+   * trainer that reports no rate at all is not restarted over it (a restart cannot change that).
+   */
+  private void notConfirmed(long now) throws IOException {
+    Pending p = pending;
+    pending = null;
+    boolean restart = rules.steer().restartWhenUnconfirmed() && !p.afterFallback()
+        && (!p.atLaunch() || !Double.isNaN(reportedRate));
+    Map<String, Object> f = new LinkedHashMap<>();
+    f.put("decision_seq", p.decisionSeq());
+    f.put("for", p.atLaunch() ? "launch " + attempt : "live change");
+    f.put("revision", p.revision());
+    f.put("learning_rate", p.rate());
+    f.put("reported_rate", Double.isNaN(reportedRate) ? null : reportedRate);
+    f.put("waited_ms", now - p.sinceMillis());
+    f.put("fallback", restart ? "restart" : "none");
+    audit.append("not-confirmed", f);
+    say("the trainer did not confirm rate " + p.rate() + " within "
+        + rules.steer().confirmWithin().toSeconds() + " s (it reports "
+        + (Double.isNaN(reportedRate) ? "no rate" : Double.toString(reportedRate)) + ")");
+    if (restart) {
+      relaunchLater(new Request.Relaunch("change not confirmed", p.decisionSeq(),
+          intake.lastStep(), 0, true));
     }
   }
 
@@ -1077,6 +1205,7 @@ public final class Supervisor {
           : ledger.abandonAfter(target.map(CheckpointLedger.Entry::step).orElse(-1L));
       Map<String, Object> f = new LinkedHashMap<>();
       f.put("reason", rl.reason());
+      f.put("decision_seq", rl.decisionSeq());
       f.put("trainer_killed", stop.killed());
       f.put("resume_from", resumeFrom.isEmpty() ? null : resumeFrom);
       f.put("resume_step", target.map(CheckpointLedger.Entry::step).orElse(null));
@@ -1094,7 +1223,10 @@ public final class Supervisor {
       if (target.isPresent()) {
         intake.continueAfter(target.get().step());
       }
-      launch(rl.reason(), rl.skipBatches());
+      if (interrupted) {
+        return; // the loop ends the run; no trainer is launched after a stop signal
+      }
+      launch(rl.reason(), rl.skipBatches(), null, rl.decisionSeq());
     }
   }
 
@@ -1125,12 +1257,17 @@ public final class Supervisor {
             + rules.limits().crashRestarts() + ") is spent");
       }
       crashRestarts++;
+      // The count and the planned restart reach state.json before the back-off: a supervisor
+      // killed while waiting resumes with the crash counted.
+      endGeneration(new Planned("crash", intake.lastStep(), 0));
     }
     long backoff = Math.min(rules.limits().crashBackoff().toMillis() << (crashRestarts - 1),
         300_000L);
     say("trainer exited with code " + code + "; restart " + crashRestarts + " of "
         + rules.limits().crashRestarts() + " in " + backoff + " ms");
-    Thread.sleep(backoff);
+    if (stopRequested.await(backoff, TimeUnit.MILLISECONDS)) {
+      return null; // a stop signal during the back-off: the loop ends the run, no relaunch
+    }
     relaunch(new Request.Relaunch("crash", null, intake.lastStep(), 0, true));
     return null;
   }
@@ -1218,11 +1355,18 @@ public final class Supervisor {
     }
   }
 
+  /** The run's exit code; an interruption by SIGTERM ends with 143 (128 + 15), as a shell says. */
+  private int exitCode(RunOutcome outcome) {
+    String by = interruptedBy;
+    return outcome == RunOutcome.INTERRUPTED && by != null && by.contains("TERM")
+        && !by.contains("INT") ? 143 : outcome.exitCode();
+  }
+
   private Result result(RunOutcome outcome, String reason) throws IOException {
     Optional<CheckpointLedger.Entry> best = ledger == null ? Optional.empty() : ledger.best();
     Map<String, Object> f = new LinkedHashMap<>();
     f.put("outcome", outcome.name().toLowerCase(Locale.ROOT).replace('_', '-'));
-    f.put("exit_code", outcome.exitCode());
+    f.put("exit_code", exitCode(outcome));
     f.put("reason", reason);
     f.put("interventions", interventions);
     f.put("final_learning_rate", engine.rate());

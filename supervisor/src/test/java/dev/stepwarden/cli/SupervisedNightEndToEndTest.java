@@ -70,6 +70,7 @@ class SupervisedNightEndToEndTest {
     });
     assertThat(audit.records()).anySatisfy(r -> {
       assertThat(r.get("type")).isEqualTo("confirmed");
+      assertThat(r.get("decision_seq")).isInstanceOf(Number.class);
       assertThat(((Number) r.get("decision_seq")).longValue()).isEqualTo(seq);
     });
     assertThat(Files.readString(runDir.resolve("control.json"))).contains("\"guard\":\"flat-validation\"");

@@ -43,7 +43,10 @@ class SteeringTest {
     List<Map<String, Object>> audit = n.audit();
     Map<String, Object> decision = ofType(audit, "decision").get(0);
     assertThat(decision.get("rate_after")).isEqualTo(0.05);
-    Map<String, Object> confirmed = ofType(audit, "confirmed").get(0);
+    // The launch's own rate is confirmed first (0.1), then the live change.
+    assertThat(ofType(audit, "confirmed").get(0).get("for")).isEqualTo("launch 1");
+    Map<String, Object> confirmed = ofType(audit, "confirmed").stream()
+        .filter(c -> "live change".equals(c.get("for"))).findFirst().orElseThrow();
     assertThat(confirmed.get("by")).isEqualTo("applied_revision");
     assertThat(confirmed.get("learning_rate")).isEqualTo(0.05);
     assertThat(ofType(audit, "not-confirmed")).isEmpty();
