@@ -84,6 +84,12 @@ public final class Main implements Runnable {
     cl.setParameterExceptionHandler((ex, args) -> {
       CommandLine c = ex.getCommandLine();
       c.getErr().println("stepwarden: " + ex.getMessage());
+      if (c.getCommandName().equals("run") && !java.util.Arrays.asList(args).contains("--")
+          && ex instanceof CommandLine.UnmatchedArgumentException) {
+        // 'run --rules r.yaml python3 train.py --lr 0.1': the trainer's options look like ours
+        c.getErr().println("hint: put '--' before the training command, so its options stay"
+            + " its own: stepwarden run --rules FILE -- python3 train.py --lr {learning_rate}");
+      }
       c.getErr().println("Try 'stepwarden " + (c.getCommandName().equals("stepwarden") ? ""
           : c.getCommandName() + " ") + "--help'.");
       return ExitCodes.USAGE;

@@ -1,6 +1,8 @@
 package dev.stepwarden.cli;
 
 import dev.stepwarden.process.Stops;
+import dev.stepwarden.queue.Overrides;
+import dev.stepwarden.queue.QueueException;
 import dev.stepwarden.rules.ConfigException;
 import dev.stepwarden.rules.GuardFile;
 import dev.stepwarden.rules.GuardFiles;
@@ -14,12 +16,14 @@ import dev.stepwarden.telemetry.RunMeters;
 import io.micrometer.prometheusmetrics.PrometheusMeterRegistry;
 import java.io.IOException;
 import java.io.PrintWriter;
+import java.nio.charset.StandardCharsets;
 import java.nio.file.FileAlreadyExistsException;
 import java.nio.file.Files;
 import java.nio.file.Path;
 import java.time.Duration;
 import java.util.List;
 import java.util.Locale;
+import java.util.Map;
 import java.util.concurrent.Callable;
 import java.util.regex.Matcher;
 import java.util.regex.Pattern;
@@ -32,6 +36,8 @@ import picocli.CommandLine.Spec;
 @Command(name = "run", description = "Supervise one training run in the foreground.",
     footer = {"", "Examples:", "  stepwarden run --rules rules/overnight.yaml -- python3 train.py"
         + " --lr {learning_rate}", "  stepwarden run --resume runs/sensor-net-20260101-220000",
+        "  stepwarden run --rules night.yaml --set run.learning_rate=0.05 -- python3 train.py"
+            + " --lr {learning_rate}",
         "", "On SIGUSR1 (a batch scheduler's pre-emption notice) the trainer is asked for a"
         + " checkpoint, stopped, the state saved, and stepwarden exits with 75; requeue the job"
         + " with run --resume.", "", ExitCodes.TABLE})
@@ -75,6 +81,11 @@ final class RunCommand implements Callable<Integer> {
       + " metrics on http://127.0.0.1:PORT/metrics while the run lasts (0 picks a free port).")
   Integer metricsPort;
 
+  @Option(names = "--set", paramLabel = "KEY=VALUE", description = "Change the guard file for"
+      + " this run, e.g. --set run.learning_rate=0.05 (repeatable; the value is read as YAML,"
+      + " as queue add reads it). The run directory keeps the changed file.")
+  Map<String, String> sets;
+
   @Parameters(arity = "0..*", paramLabel = "COMMAND",
       description = "The training command after '--' (overrides run.command).")
   List<String> command;
@@ -86,6 +97,10 @@ final class RunCommand implements Callable<Integer> {
       // picocli hands unknown options to the positional command; a program never starts with '-'
       err.println("stepwarden: unknown option '" + command.get(0) + "' for run; put the training"
           + " command after '--'. Try 'stepwarden run --help'.");
+      return ExitCodes.USAGE;
+    }
+    if (sets != null && resume != null) {
+      err.println("stepwarden: --resume continues with the run's own guard file; drop --set");
       return ExitCodes.USAGE;
     }
     Supervisor.Preemption preemption;
@@ -110,6 +125,17 @@ final class RunCommand implements Callable<Integer> {
       err.println(e.getMessage());
       return ExitCodes.CONFIG;
     }
+    try {
+      if (sets != null) {
+        g = withSets(rules, sets);
+      }
+    } catch (ConfigException e) {
+      err.println("after --set: " + e.getMessage());
+      return ExitCodes.CONFIG;
+    } catch (QueueException | IOException e) {
+      err.println("stepwarden: " + e.getMessage());
+      return ExitCodes.CONFIG;
+    }
     if (command != null && !command.isEmpty()) {
       g = g.withCommand(command);
     }
@@ -126,6 +152,19 @@ final class RunCommand implements Callable<Integer> {
       err.println("stepwarden: " + e.getMessage());
       return ExitCodes.USAGE;
     }
+  }
+
+  /**
+   * The guard file with {@code --set} applied, loaded from a copy in the temporary folder (the
+   * run directory keeps that copy as guards.yaml, so --resume continues with the same settings).
+   */
+  private static GuardFile withSets(Path rules, Map<String, String> sets)
+      throws IOException, QueueException, ConfigException {
+    String merged = Overrides.apply(Files.readString(rules, StandardCharsets.UTF_8), sets);
+    Path copy = Files.createTempFile("stepwarden-set-", ".yaml");
+    copy.toFile().deleteOnExit();
+    Files.writeString(copy, merged, StandardCharsets.UTF_8);
+    return GuardFiles.load(copy);
   }
 
   /** The optional Prometheus endpoint of one run, bound to 127.0.0.1. */

@@ -7,16 +7,17 @@ import tools.jackson.databind.node.ObjectNode;
 import tools.jackson.dataformat.yaml.YAMLMapper;
 
 /**
- * {@code --set key.path=value} on a guard file: the value is read as YAML, so numbers stay
+ * {@code --set key.path=value} on a guard file (queue add and run): the value is read as YAML, so numbers stay
  * numbers ({@code run.learning_rate=0.05}) and {@code run.env={SEED: 3}} sets a map. The result is
  * validated again by the guard-file loader, so an override can never smuggle in a bad key.
  */
-final class Overrides {
+public final class Overrides {
   private static final YAMLMapper YAML = YAMLMapper.builder().build();
 
   private Overrides() {}
 
-  static String apply(String yaml, Map<String, String> sets) throws QueueException {
+  /** {@code yaml} with each {@code key.path=value} set; used by queue add and run --set. */
+  public static String apply(String yaml, Map<String, String> sets) throws QueueException {
     JsonNode root;
     try {
       root = YAML.readTree(yaml);

@@ -124,6 +124,34 @@ class CliTest {
     assertThat(run("run", "--version").out()).isEqualTo(r.out());
   }
 
+  @Test
+  void runSetChangesTheGuardFileAndTheStartingRateReachesTheTrainer(@TempDir Path tmp)
+      throws Exception {
+    Path rules = tmp.resolve("night.yaml");
+    Files.writeString(rules, "run:\n  command: [sh, -c, 'echo \"$0\" > seen.txt',"
+        + " '{learning_rate}']\n"
+        + "  learning_rate: 0.1\n  workdir: " + tmp + "\n");
+    Out r = run("run", "--rules", rules.toString(), "--set", "run.learning_rate=0.05", "--set",
+        "run.name=set-test", "-q", "--run-dir", tmp.resolve("runs/one").toString());
+    assertThat(r.code()).as(r.err() + r.out()).isZero();
+    assertThat(Files.readString(tmp.resolve("seen.txt")).strip()).isEqualTo("0.05");
+    // the run directory keeps the changed file, so --resume would continue with it
+    assertThat(Files.readString(tmp.resolve("runs/one/guards.yaml")))
+        .contains("learning_rate: 0.05").contains("name: \"set-test\"");
+    Out bad = run("run", "--rules", rules.toString(), "--set", "run.learning_rat=0.05");
+    assertThat(bad.code()).isEqualTo(ExitCodes.CONFIG);
+    assertThat(bad.err()).startsWith("after --set: ").contains("did you mean 'learning_rate'?");
+  }
+
+  @Test
+  void aTrainerOptionBeforeAMissingDoubleDashGetsAHint() {
+    Out r = run("run", "--rules", "r.yaml", "python3", "train.py", "--lr", "0.1");
+    assertThat(r.code()).isEqualTo(ExitCodes.USAGE);
+    assertThat(r.err()).contains("'--lr'").contains("hint: put '--' before the training command");
+    assertThat(run("run", "--rules", "r.yaml", "--quite", "--", "python3").err())
+        .doesNotContain("hint:");
+  }
+
   /** The guard-file sketch of the product brief, as a test fixture. */
   static final class GuardFilesSketch {
     static final String TEXT = String.join("\n",
