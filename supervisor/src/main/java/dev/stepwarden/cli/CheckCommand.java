@@ -1,5 +1,6 @@
 package dev.stepwarden.cli;
 
+import dev.stepwarden.rules.CommandCheck;
 import dev.stepwarden.rules.ConfigException;
 import dev.stepwarden.rules.Explain;
 import dev.stepwarden.rules.GuardFile;
@@ -28,6 +29,10 @@ final class CheckCommand implements Callable<Integer> {
       try {
         GuardFile g = GuardFiles.load(f);
         spec.commandLine().getOut().println(f + ": valid");
+        // a warning, not a refusal: a guard file may be checked away from where it is run
+        CommandCheck.missingScript(g.run().command(), g.run().workdir()).ifPresent(p ->
+            spec.commandLine().getErr().println(f + ": warning: " + p + " (run refuses to start"
+                + " so)"));
         for (String line : Explain.describe(g)) {
           spec.commandLine().getOut().println("  " + line);
         }

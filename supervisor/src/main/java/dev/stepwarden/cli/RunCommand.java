@@ -3,6 +3,7 @@ package dev.stepwarden.cli;
 import dev.stepwarden.process.Stops;
 import dev.stepwarden.queue.Overrides;
 import dev.stepwarden.queue.QueueException;
+import dev.stepwarden.rules.CommandCheck;
 import dev.stepwarden.rules.ConfigException;
 import dev.stepwarden.rules.GuardFile;
 import dev.stepwarden.rules.GuardFiles;
@@ -143,6 +144,15 @@ final class RunCommand implements Callable<Integer> {
       err.println("stepwarden: no command to run: give one after '--' or in run.command of "
           + rules);
       return ExitCodes.USAGE;
+    }
+    // the command after '--' was not seen by the loader; the script is looked for where the run
+    // will start, so a typo costs no crash back-offs
+    GuardFile.Run run = g.run();
+    java.util.Optional<String> problem = CommandCheck.rateUnreachable(run.command(), g.steer())
+        .or(() -> CommandCheck.missingScript(run.command(), run.workdir()));
+    if (problem.isPresent()) {
+      err.println("stepwarden: " + rules + ": " + problem.get());
+      return ExitCodes.CONFIG;
     }
     try (Telemetry t = Telemetry.open(metricsPort, g, err)) {
       Supervisor.Options o = new Supervisor.Options(runDir, quiet, null, null)

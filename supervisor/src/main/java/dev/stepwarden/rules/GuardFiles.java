@@ -86,6 +86,10 @@ public final class GuardFiles {
     }
     List<GuardFile.Guard> guards = guards(top.entries.get("guards"), read);
     Optional<GuardFile.Probe> probe = probe(top, steer, read);
+    Optional<String> unreachable = CommandCheck.rateUnreachable(command, steer);
+    if (unreachable.isPresent()) {
+      throw fail(runNode.entries.get("command"), unreachable.get());
+    }
     return new GuardFile(file, runSpec, read, steer, ckpt, guards, limits, probe);
   }
 

@@ -152,6 +152,43 @@ class CliTest {
         .doesNotContain("hint:");
   }
 
+  @Test
+  void restartSteeringWithoutTheRatePlaceholderIsRefusedByCheckWithTheFix(@TempDir Path tmp)
+      throws Exception {
+    Path f = tmp.resolve("literal.yaml");
+    Files.writeString(f, "run:\n  command: [sh, -c, 'true', --lr, '3.0']\n  learning_rate: 1.5\n"
+        + "steer: { by: restart }\n");
+    Out r = run("check", f.toString());
+    assertThat(r.code()).isEqualTo(ExitCodes.CONFIG);
+    assertThat(r.err()).startsWith(f + ":2:").contains("has none")
+        .contains("add it to the command (e.g. --lr \"{learning_rate}\")");
+    // the same command given after '--' is refused by run before anything starts
+    Files.writeString(f, "run:\n  learning_rate: 1.5\nsteer: { by: restart }\n");
+    Out viaRun = run("run", "--rules", f.toString(), "--", "sh", "-c", "true", "--lr", "3.0");
+    assertThat(viaRun.code()).isEqualTo(ExitCodes.CONFIG);
+    assertThat(viaRun.err()).contains("{learning_rate}");
+  }
+
+  @Test
+  void aMissingTrainerScriptEndsTheRunAtOnceNamingTheScriptAndTheNearestName(@TempDir Path tmp)
+      throws Exception {
+    Files.writeString(tmp.resolve("train.py"), "print('never run')\n");
+    Path f = tmp.resolve("night.yaml");
+    Files.writeString(f, "run:\n  command: [python3, -u, -X, dev, trian.py, --lr,"
+        + " '{learning_rate}']\n  learning_rate: 0.1\n  workdir: " + tmp + "\n");
+    long t0 = System.nanoTime();
+    Out r = run("run", "--rules", f.toString(), "--run-dir", tmp.resolve("runs/x").toString());
+    long seconds = (System.nanoTime() - t0) / 1_000_000_000L;
+    assertThat(r.code()).isEqualTo(ExitCodes.CONFIG);
+    assertThat(seconds).isLessThan(30);
+    assertThat(r.err()).contains("the script 'trian.py' that python3 is to run does not exist in "
+        + tmp.toRealPath()).contains("did you mean 'train.py'?");
+    // check says so as a warning: the file may be checked away from where it is run
+    Out c = run("check", f.toString());
+    assertThat(c.code()).isZero();
+    assertThat(c.err()).contains("warning: the script 'trian.py'");
+  }
+
   /** The guard-file sketch of the product brief, as a test fixture. */
   static final class GuardFilesSketch {
     static final String TEXT = String.join("\n",
