@@ -90,6 +90,11 @@ public final class Main implements Runnable {
         c.getErr().println("hint: put '--' before the training command, so its options stay"
             + " its own: stepwarden run --rules FILE -- python3 train.py --lr {learning_rate}");
       }
+      String renamed = ex instanceof CommandLine.UnmatchedArgumentException u
+          ? QueueCommand.renameHint(u.getUnmatched()) : null;
+      if (renamed != null) {
+        c.getErr().println("stepwarden: " + renamed);
+      }
       c.getErr().println("Try 'stepwarden " + (c.getCommandName().equals("stepwarden") ? ""
           : c.getCommandName() + " ") + "--help'.");
       return ExitCodes.USAGE;

@@ -25,18 +25,34 @@ import picocli.CommandLine.Option;
 import picocli.CommandLine.Parameters;
 import picocli.CommandLine.Spec;
 
-@Command(name = "queue", mixinStandardHelpOptions = true, description = "The overnight queue: add, list and cancel jobs that"
-    + " `stepwarden serve` runs.",
+@Command(name = "queue", mixinStandardHelpOptions = true, description = "The overnight queue: add, list, cancel and purge"
+    + " jobs that `stepwarden serve` runs.",
     subcommands = {QueueCommand.Add.class, QueueCommand.ListJobs.class,
-        QueueCommand.Cancel.class})
+        QueueCommand.Cancel.class, QueueCommand.Purge.class})
 final class QueueCommand implements Runnable {
+  /** Options of the queue and of serve that have new names, old spelling to new. */
+  static final Map<String, String> RENAMED = Map.of("--study", "--cohort", "--median-min-runs",
+      "--median-quorum", "--median-min-step", "--median-from-step");
+
+  /** The hint for an old spelling among {@code args}, or null. */
+  static String renameHint(List<String> args) {
+    for (String a : args) {
+      String name = a.contains("=") ? a.substring(0, a.indexOf('=')) : a;
+      if (RENAMED.containsKey(name)) {
+        return name + " is now " + RENAMED.get(name) + " (same meaning; the old name is no"
+            + " longer read)";
+      }
+    }
+    return null;
+  }
+
   @Spec
   CommandSpec spec;
 
   @Override
   public void run() {
     throw new picocli.CommandLine.ParameterException(spec.commandLine(),
-        "name a queue subcommand: add, list or cancel");
+        "name a queue subcommand: add, list, cancel or purge");
   }
 
   /** Where the queue lives; shared by queue and serve. */
@@ -109,8 +125,9 @@ final class QueueCommand implements Runnable {
     @ArgGroup(exclusive = true)
     When when;
 
-    @Option(names = "--priority", paramLabel = "N", description = "Among jobs due at the same"
-        + " time the higher starts first (default 5).")
+    @Option(names = "--priority", paramLabel = "N", description = "0 to 99 (default 5): when"
+        + " a slot frees, the waiting job of the highest priority starts (of one priority, the"
+        + " one added first).")
     int priority = 5;
 
     @Option(names = "--after", paramLabel = "JOB", description = "Start once this job ended.")
@@ -120,9 +137,10 @@ final class QueueCommand implements Runnable {
         + " e.g. --set run.learning_rate=0.05 (the value is read as YAML).")
     Map<String, String> sets;
 
-    @Option(names = "--study", paramLabel = "NAME", description = "The study this run belongs"
-        + " to, for the median stopping rule of serve.")
-    String study;
+    @Option(names = "--cohort", paramLabel = "NAME", description = "Runs of one cohort are"
+        + " compared by serve's median stopping rule (Golovin et al. 2017): a run whose best so"
+        + " far is worse than the median of the completed runs' averages is stopped.")
+    String cohort;
 
     @Override
     public Integer call() {
@@ -137,7 +155,7 @@ final class QueueCommand implements Runnable {
       }
       try (Queue q = Queue.open(where.settings(false, null))) {
         String id = q.add(new JobRequest(rules, at, when == null ? null : when.cron, priority,
-            after, sets, study, null));
+            after, sets, cohort, null));
         spec.commandLine().getOut().println(id);
         return ExitCodes.OK;
       } catch (QueueException | IllegalArgumentException e) {
@@ -149,6 +167,10 @@ final class QueueCommand implements Runnable {
   }
 
   static Instant parseTime(String text, Instant now, ZoneId zone) {
+    return parseTime(text, now, zone, "--at");
+  }
+
+  static Instant parseTime(String text, Instant now, ZoneId zone, String option) {
     try {
       if (text.matches("\\d{1,2}:\\d{2}")) {
         LocalTime t = LocalTime.parse(text.length() == 4 ? "0" + text : text);
@@ -161,7 +183,7 @@ final class QueueCommand implements Runnable {
       }
       return LocalDateTime.parse(text).atZone(zone).toInstant();
     } catch (DateTimeParseException e) {
-      throw new IllegalArgumentException("--at '" + text + "': give HH:MM, YYYY-MM-DDTHH:MM or"
+      throw new IllegalArgumentException(option + " '" + text + "': give HH:MM, YYYY-MM-DDTHH:MM or"
           + " an ISO instant such as 2026-03-01T22:00:00Z");
     }
   }
@@ -183,10 +205,8 @@ final class QueueCommand implements Runnable {
       try (Queue q = Queue.open(where.settings(false, null))) {
         List<JobView> jobs = q.list();
         if (json) {
-          tools.jackson.databind.json.JsonMapper m = tools.jackson.databind.json.JsonMapper
-              .builder().build();
           for (JobView v : jobs) {
-            out.println(m.writeValueAsString(v));
+            out.println(JobView.json(v));
           }
           return ExitCodes.OK;
         }
@@ -195,6 +215,7 @@ final class QueueCommand implements Runnable {
         for (JobView v : jobs) {
           String status = v.status() + ("after".equals(v.status()) ? " " + v.after() : "");
           String detail = v.next() != null && !"running".equals(v.status()) ? v.next().toString()
+              : v.due() && !"running".equals(v.status()) ? "due (next free slot)"
               : v.outcome() == null ? "" : v.outcome() + " (exit " + v.exitCode() + ")";
           out.printf("%-28s %-15s %4d  %-24s %s%n", v.id(), status, v.priority(), detail,
               v.runDir() == null ? "" : v.runDir());
@@ -225,6 +246,46 @@ final class QueueCommand implements Runnable {
         JobView v = q.cancel(id);
         spec.commandLine().getOut().println(v.id() + ": " + ("running".equals(v.status())
             ? "cancel requested; its serve stops it within a few seconds" : v.status()));
+        return ExitCodes.OK;
+      } catch (QueueException | IllegalArgumentException e) {
+        spec.commandLine().getErr().println("stepwarden: " + e.getMessage());
+        return ExitCodes.USAGE;
+      }
+    }
+  }
+
+  @Command(name = "purge", mixinStandardHelpOptions = true, description = "Forget ended jobs"
+      + " (done, cancelled, failed, median-stopped) that ended before a date. Their run"
+      + " directories stay where they are.",
+      footer = {"", "Examples:", "  stepwarden queue purge --before 2026-11-01",
+          "  stepwarden queue purge --before 2026-11-01T12:00:00Z"})
+  static final class Purge implements Callable<Integer> {
+    @Spec
+    CommandSpec spec;
+
+    @Mixin
+    Where where = new Where();
+
+    @Option(names = "--before", paramLabel = "DATE", required = true, description = "YYYY-MM-DD"
+        + " (local midnight), YYYY-MM-DDTHH:MM (local) or an ISO instant.")
+    String before;
+
+    @Override
+    public Integer call() {
+      Instant when;
+      try {
+        when = before.matches("\\d{4}-\\d{2}-\\d{2}") ? LocalDate.parse(before)
+            .atStartOfDay(ZoneId.systemDefault()).toInstant()
+            : parseTime(before, Instant.now(), ZoneId.systemDefault(), "--before");
+      } catch (IllegalArgumentException | DateTimeParseException e) {
+        spec.commandLine().getErr().println("stepwarden: --before '" + before + "': give"
+            + " YYYY-MM-DD, YYYY-MM-DDTHH:MM or an ISO instant such as 2026-11-01T00:00:00Z");
+        return ExitCodes.USAGE;
+      }
+      try (Queue q = Queue.open(where.settings(false, null))) {
+        int n = q.purge(when);
+        spec.commandLine().getOut().println("forgot " + n + " ended job(s) that ended before "
+            + when + "; their run directories are untouched");
         return ExitCodes.OK;
       } catch (QueueException | IllegalArgumentException e) {
         spec.commandLine().getErr().println("stepwarden: " + e.getMessage());

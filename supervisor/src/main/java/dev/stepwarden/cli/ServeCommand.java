@@ -65,20 +65,25 @@ final class ServeCommand implements Callable<Integer> {
   String checkin = "5s";
 
   @Option(names = "--no-median-stop", description = "Do not apply the median stopping rule to"
-      + " jobs of a --study.")
+      + " jobs of a --cohort.")
   boolean noMedian;
 
-  @Option(names = "--median-min-runs", paramLabel = "N", description = "The median rule waits"
-      + " for this many completed runs of the study (default 3).")
-  int medianMinRuns = 3;
+  @Option(names = "--median-quorum", paramLabel = "N", description = "The median rule judges"
+      + " once this many completed runs of the cohort have reached the step (default 3).")
+  int medianQuorum = 3;
 
-  @Option(names = "--median-min-step", paramLabel = "STEP", description = "The median rule does"
-      + " not judge before this step (default 0).")
-  long medianMinStep;
+  @Option(names = "--median-from-step", paramLabel = "STEP", description = "The median rule"
+      + " does not judge before this step (default 0).")
+  long medianFromStep;
 
   @Option(names = "--median-series", paramLabel = "SERIES", description = "The series the"
       + " median rule compares, lower is better (default validation).")
   String medianSeries = "validation";
+
+  @Option(names = "--keep-history", paramLabel = "DAYS", description = "Forget ended jobs this"
+      + " many days after they ended (their run directories stay; default 90; 0 keeps them"
+      + " all). See also queue purge.")
+  int keepHistoryDays = 90;
 
   @Override
   public Integer call() {
@@ -103,6 +108,10 @@ final class ServeCommand implements Callable<Integer> {
       every = parseDuration(checkin);
       settings = where.settings(cluster, every);
       plan = Night.Options.plan(slots, gpus);
+      if (keepHistoryDays < 0) {
+        throw new IllegalArgumentException("--keep-history " + keepHistoryDays + ": give a"
+            + " number of days, or 0 to keep every ended job");
+      }
     } catch (IllegalArgumentException | QueueException e) {
       err.println("stepwarden: " + e.getMessage());
       return ExitCodes.USAGE;
@@ -118,8 +127,9 @@ final class ServeCommand implements Callable<Integer> {
       queue = Queue.openForServe(settings, plan.size());
       PrintStream console = new PrintStream(new java.io.FileOutputStream(
           java.io.FileDescriptor.err), true, java.nio.charset.StandardCharsets.UTF_8);
-      night = queue.serve(new Night.Options(plan, registry, resumer(), console, !noMedian,
-          medianSeries, medianMinRuns, medianMinStep));
+      night = queue.serve(new Night.Options(plan, registry, console, !noMedian, medianSeries,
+          medianQuorum, medianFromStep, keepHistoryDays == 0 ? null
+              : Duration.ofDays(keepHistoryDays)));
       out.println("stepwarden serve: node " + night.node() + ", " + plan.size() + " slot(s),"
           + " queue " + (settings.jdbcUrl() == null ? settings.home() : settings.jdbcUrl())
           + ", runs in " + settings.runs());
@@ -166,6 +176,8 @@ final class ServeCommand implements Callable<Integer> {
       }
       Thread closer = new Thread(night::close, "stepwarden-serve-close");
       closer.setDaemon(true);
+      // a thread started from a signal handler has no context class loader; Quartz needs one
+      closer.setContextClassLoader(ServeCommand.class.getClassLoader());
       closer.start();
       try {
         closer.join(STOP_WAIT_MS);
@@ -233,23 +245,4 @@ final class ServeCommand implements Callable<Integer> {
         : Duration.ofSeconds(n);
   }
 
-  /** Continues an unfinished run through {@code run --resume} when this build has it. */
-  static Night.Resumer resumer() {
-    CommandLine run = Main.commandLine().getSubcommands().get("run");
-    if (run == null || run.getCommandSpec().findOption("--resume") == null) {
-      return null;
-    }
-    return new Night.Resumer() {
-      @Override
-      public int resume(java.nio.file.Path dir) {
-        return Main.execute(new String[] {"run", "--resume", dir.toString()},
-            new PrintWriter(System.out, true), new PrintWriter(System.err, true));
-      }
-
-      @Override
-      public void stopAll(String reason) {
-        RunCommand.interruptAll(reason);
-      }
-    };
-  }
 }

@@ -16,7 +16,7 @@ import tools.jackson.databind.JsonNode;
 import tools.jackson.databind.json.JsonMapper;
 
 /**
- * The median stopping rule across the runs of one study (Golovin et al. 2017, "Google Vizier",
+ * The median stopping rule across the runs of one cohort (Golovin et al. 2017, "Google Vizier",
  * section 3.2): a pending run is stopped at step s when its best value by step s is strictly worse
  * than the median of the running averages, up to step s, of the completed runs' values. Lower is
  * better (losses). The completed runs are read once, when the pending run starts, from the
@@ -47,7 +47,7 @@ public final class MedianStopping {
     public String summary() {
       return "median stopping rule: best " + best + " by step " + step + " is worse than the"
           + " median " + median + " of the running averages of " + completedRuns
-          + " completed runs of the study";
+          + " completed runs of the cohort";
     }
   }
 

@@ -3,12 +3,16 @@ package dev.stepwarden.queue;
 import dev.stepwarden.audit.AuditLog;
 import dev.stepwarden.process.Stops;
 import dev.stepwarden.supervise.Supervisor;
+import dev.stepwarden.telemetry.QueueMeters;
 import io.micrometer.core.instrument.MeterRegistry;
 import java.io.IOException;
 import java.io.PrintStream;
-import java.nio.file.Path;
 import java.time.Clock;
+import java.time.Duration;
+import java.time.Instant;
 import java.util.ArrayList;
+import java.util.Collections;
+import java.util.LinkedHashMap;
 import java.util.List;
 import java.util.Map;
 import java.util.Set;
@@ -16,46 +20,43 @@ import java.util.concurrent.ConcurrentHashMap;
 import java.util.concurrent.Executors;
 import java.util.concurrent.ScheduledExecutorService;
 import java.util.concurrent.TimeUnit;
+import java.util.concurrent.atomic.AtomicLong;
 import org.quartz.JobDataMap;
 import org.quartz.JobDetail;
 import org.quartz.JobKey;
 import org.quartz.ObjectAlreadyExistsException;
 import org.quartz.Scheduler;
 import org.quartz.SchedulerException;
+import org.quartz.SimpleTrigger;
+import org.quartz.Trigger;
+import org.quartz.TriggerKey;
 import org.quartz.impl.matchers.GroupMatcher;
 
 /**
- * A serving queue: the started Quartz scheduler, its slots, and a one-second housekeeping tick
- * that releases jobs whose {@code --after} job ended and passes {@code queue cancel} on to the
- * runs of this process. Close it to stop: running jobs are interrupted (their trainers stopped
- * and audited) and given a fresh trigger, so the next serve resumes them.
+ * A serving queue: the started Quartz scheduler, its slots, and a one-second housekeeping tick.
+ * The tick answers the commands of the request folder (embedded store), passes {@code queue
+ * cancel} on to the runs of this process, fences this node in a cluster ({@link Fence}), and,
+ * while every slot is busy, gives an {@code --at} job whose time has come its place among the
+ * due jobs. None of it reads the whole job history: {@code --after} jobs are released when the
+ * job they wait for ends (and once at start-up), and history is forgotten after {@code
+ * keepHistory}. Close it to stop: running jobs are interrupted (their trainers stopped and
+ * audited) and given a fresh trigger, so the next serve resumes them.
  */
 public final class Night implements AutoCloseable {
-  /** How a job whose supervisor died is continued in its run directory; null when unavailable. */
-  public interface Resumer {
-    /** Continues the run in {@code runDir} in the foreground; returns its exit code. */
-    int resume(Path runDir) throws Exception;
-
-    /**
-     * Stops (and audits) every run this resumer is continuing, as {@link #close()} does with
-     * the runs it started itself; those return from {@link #resume} soon after.
-     */
-    void stopAll(String reason);
-  }
-
   /**
    * @param gpus per slot the CUDA_VISIBLE_DEVICES value (null entries leave it alone)
-   * @param registry meters for the runs, or null
-   * @param resumer continues an unfinished run; null starts a new attempt directory instead
-   * @param minCompleted the median rule needs this many completed runs of the study
-   * @param minStep the median rule does not judge before this step
-   * @param median use the median stopping rule for jobs that name a study
+   * @param registry meters for the runs and the queue, or null
+   * @param median use the median stopping rule for jobs that name a cohort
+   * @param medianSeries the series the median rule compares (lower is better)
+   * @param quorum the median rule needs this many completed runs of the cohort reporting
+   * @param fromStep the median rule does not judge before this step
+   * @param keepHistory ended jobs are forgotten this long after they ended; null keeps them
    */
-  public record Options(List<String> gpus, MeterRegistry registry, Resumer resumer,
-      PrintStream console, boolean median, String medianSeries, int minCompleted, long minStep) {
+  public record Options(List<String> gpus, MeterRegistry registry, PrintStream console,
+      boolean median, String medianSeries, int quorum, long fromStep, Duration keepHistory) {
     public Options {
-      gpus = gpus == null || gpus.isEmpty() ? java.util.Collections.singletonList(null)
-          : new java.util.ArrayList<>(gpus);
+      gpus = gpus == null || gpus.isEmpty() ? Collections.singletonList(null)
+          : new ArrayList<>(gpus);
       console = console == null ? System.err : console;
       medianSeries = medianSeries == null ? "validation" : medianSeries;
     }
@@ -66,12 +67,18 @@ public final class Night implements AutoCloseable {
     }
 
     public static Options slots(int n) {
-      return new Options(java.util.Collections.nCopies(n, null), null, null, null, true, null, 3,
-          0);
+      return new Options(Collections.nCopies(n, null), null, null, true, null, 3, 0, null);
     }
   }
 
   static final String CONTEXT_KEY = "stepwarden.night";
+  private static final long PURGE_EVERY_MS = 3_600_000;
+
+  /** A job this node has taken on: its supervisor once launched, and whether it was fenced. */
+  static final class Active {
+    volatile Supervisor supervisor;
+    volatile String fenced;
+  }
 
   final Queue queue;
   final Options options;
@@ -79,10 +86,14 @@ public final class Night implements AutoCloseable {
   final Scheduler scheduler;
   final String node;
   final AuditLog log;
-  final Map<String, Supervisor> running = new ConcurrentHashMap<>();
+  final Map<String, Active> active = new ConcurrentHashMap<>();
   final Set<String> cancelled = ConcurrentHashMap.newKeySet();
+  final AtomicLong lastJobEndMillis = new AtomicLong();
   volatile boolean stopping;
+  private final Fence fence;
   private final ScheduledExecutorService tick;
+  private QueueMeters meters;
+  private long lastPurge;
 
   private Night(Queue queue, Options options, AuditLog log) throws SchedulerException {
     this.queue = queue;
@@ -91,6 +102,7 @@ public final class Night implements AutoCloseable {
     this.scheduler = queue.scheduler();
     this.node = scheduler.getSchedulerInstanceId();
     this.log = log;
+    this.fence = queue.settings().clustered() ? new Fence(queue.settings(), node) : null;
     this.tick = Executors.newSingleThreadScheduledExecutor(r -> {
       Thread t = new Thread(r, "stepwarden-queue-tick");
       t.setDaemon(true);
@@ -100,13 +112,18 @@ public final class Night implements AutoCloseable {
 
   static Night start(Queue queue, Options options) throws QueueException {
     try {
-      AuditLog log = AuditLog.open(queue.settings().home().resolve("serve-audit.jsonl"),
-          Clock.systemUTC());
+      AuditLog log = AuditLog.open(Home.privateFile(queue.settings().home()
+          .resolve(Home.SERVE_AUDIT)), Clock.systemUTC());
       Night n = new Night(queue, options, log);
       n.scheduler.getContext().put(CONTEXT_KEY, n);
       n.audit("serve-start", Map.of("node", n.node, "slots", n.slots.size(),
           "runs", queue.settings().runs().toString()));
-      n.releaseWaiting();
+      n.purgeHistory();
+      n.releaseAtStart();
+      if (options.registry() != null) {
+        n.meters = new QueueMeters(options.registry(), n::countByState, n::busySlots,
+            n.slots.size(), n.lastJobEndMillis::get);
+      }
       n.scheduler.start();
       n.tick.scheduleWithFixedDelay(n::housekeeping, 1, 1, TimeUnit.SECONDS);
       return n;
@@ -134,28 +151,99 @@ public final class Night implements AutoCloseable {
 
   private void housekeeping() {
     try {
-      releaseWaiting();
-      for (Map.Entry<String, Supervisor> e : running.entrySet()) {
+      if (queue.settings().jdbcUrl() == null) {
+        Mailbox.answer(queue.settings().home(), queue::answer);
+      }
+      if (fence != null) {
+        fence.check(active.keySet(), this::fenceOff);
+      }
+      for (Map.Entry<String, Active> e : active.entrySet()) {
+        Supervisor s = e.getValue().supervisor;
+        if (s == null) {
+          continue;
+        }
         JobDetail d = scheduler.getJobDetail(JobKey.jobKey(e.getKey(), Queue.GROUP));
         if (d != null && "requested".equals(d.getJobDataMap().getString(Queue.K_CANCEL))
             && cancelled.add(e.getKey())) {
           audit("cancel", Map.of("job", e.getKey()));
           say("cancelling " + e.getKey());
-          Thread t = new Thread(() -> e.getValue().interrupt("queue cancel"),
-              "stepwarden-cancel");
-          t.setDaemon(true);
-          t.start();
+          offThread("stepwarden-cancel", () -> s.interrupt("queue cancel"));
         }
       }
-    } catch (SchedulerException | RuntimeException e) {
+      long now = System.currentTimeMillis();
+      if (slots.free() == 0) {
+        redateDueStarts(); // reads the pending jobs' triggers only, and only while all are busy
+      }
+      if (now - lastPurge >= PURGE_EVERY_MS) {
+        purgeHistory();
+      }
+    } catch (SchedulerException | IOException | QueueException | RuntimeException e) {
       if (!stopping) {
         options.console().println("stepwarden serve: housekeeping: " + e.getMessage());
       }
     }
   }
 
-  /** Gives a start trigger to every job whose --after job ended, and to interrupted ones. */
-  void releaseWaiting() throws SchedulerException {
+  /**
+   * Stops a run of this node that another node continues now (or may: this node could not check
+   * in for longer than the takeover time). The trainer is stopped at once and the reason
+   * audited; the job's record is left to the node that took it over.
+   */
+  private void fenceOff(String id, String why) {
+    Active a = active.get(id);
+    if (a == null || a.fenced != null) {
+      return;
+    }
+    a.fenced = why;
+    audit("fenced", Map.of("job", id, "why", why));
+    say("job " + id + ": " + why + "; stopping its trainer");
+    Supervisor s = a.supervisor;
+    if (s != null) {
+      offThread("stepwarden-fence", () -> s.interrupt("fenced: " + why));
+    }
+  }
+
+  static void offThread(String name, Runnable r) {
+    Thread t = new Thread(r, name);
+    t.setDaemon(true);
+    t.start();
+  }
+
+  /** An {@code --at} start that came while every slot was busy joins the due jobs' order. */
+  private void redateDueStarts() throws SchedulerException {
+    Instant now = Instant.now();
+    for (TriggerKey k : scheduler.getTriggerKeys(GroupMatcher.triggerGroupEquals(Queue.GROUP))) {
+      Trigger t = scheduler.getTrigger(k);
+      if (!(t instanceof SimpleTrigger) || t.getNextFireTime() == null
+          || Queue.isDueTime(t.getNextFireTime().toInstant())
+          || t.getNextFireTime().toInstant().isAfter(now)
+          || scheduler.getTriggerState(k) != Trigger.TriggerState.NORMAL) {
+        continue;
+      }
+      JobDetail d = scheduler.getJobDetail(t.getJobKey());
+      if (d != null) {
+        scheduler.rescheduleJob(k, Queue.dueTrigger(d, k.getName().substring(
+            d.getKey().getName().length() + 1)));
+      }
+    }
+  }
+
+  private void purgeHistory() throws QueueException {
+    lastPurge = System.currentTimeMillis();
+    if (options.keepHistory() != null) {
+      int n = queue.purge(Instant.now().minus(options.keepHistory()));
+      if (n > 0) {
+        audit("purge", Map.of("forgotten_jobs", n, "ended_before",
+            Instant.now().minus(options.keepHistory()).toString()));
+      }
+    }
+  }
+
+  /**
+   * Once at start: releases {@code --after} jobs whose job ended while no serve ran, and gives a
+   * trigger to jobs a stopping serve interrupted but could not re-trigger.
+   */
+  private void releaseAtStart() throws SchedulerException {
     for (JobKey k : scheduler.getJobKeys(GroupMatcher.jobGroupEquals(Queue.GROUP))) {
       JobDetail d = scheduler.getJobDetail(k);
       if (d == null) {
@@ -164,38 +252,64 @@ public final class Night implements AutoCloseable {
       JobDataMap m = d.getJobDataMap();
       if ("interrupted".equals(m.getString(Queue.K_STATUS))
           && scheduler.getTriggersOfJob(k).isEmpty()) {
-        // stopped by a serve shutdown (SIGTERM) whose own re-trigger may not have reached the
-        // store before the database closed: give it one now so it resumes
         try {
-          scheduler.scheduleJob(Queue.trigger(k.getName(), "resume", null, null,
-              Integer.parseInt(m.getString(Queue.K_PRIORITY))));
+          scheduler.scheduleJob(Queue.dueTrigger(d, "resume"));
           audit("resume-interrupted", Map.of("job", k.getName()));
         } catch (ObjectAlreadyExistsException another) {
           // another node did it
         }
-        continue;
+      } else if ("after".equals(m.getString(Queue.K_STATUS))
+          && queue.ended(m.getString(Queue.K_AFTER))) {
+        release(d);
       }
-      if (!"after".equals(m.getString(Queue.K_STATUS))) {
-        continue;
-      }
-      if (!queue.ended(m.getString(Queue.K_AFTER))) {
-        continue;
-      }
-      try {
-        scheduler.scheduleJob(Queue.trigger(k.getName(), "after", null, null,
-            Integer.parseInt(m.getString(Queue.K_PRIORITY))));
-      } catch (ObjectAlreadyExistsException another) {
-        continue; // another node released it first
-      }
-      m.put(Queue.K_STATUS, "waiting");
-      Queue.putSafely(scheduler, d);
-      audit("released", Map.of("job", k.getName(), "after", m.getString(Queue.K_AFTER)));
     }
+  }
+
+  /** A job ended here: the jobs that wait for it may start. */
+  void jobEnded(String id) {
+    lastJobEndMillis.set(System.currentTimeMillis());
+    try {
+      for (JobKey k : scheduler.getJobKeys(GroupMatcher.jobGroupEquals(Queue.GROUP))) {
+        JobDetail d = scheduler.getJobDetail(k);
+        if (d != null && "after".equals(d.getJobDataMap().getString(Queue.K_STATUS))
+            && id.equals(d.getJobDataMap().getString(Queue.K_AFTER))) {
+          release(d);
+        }
+      }
+    } catch (SchedulerException e) {
+      say("cannot release the jobs after " + id + " (the next serve start does): "
+          + e.getMessage());
+    }
+  }
+
+  private void release(JobDetail d) throws SchedulerException {
+    try {
+      scheduler.scheduleJob(Queue.dueTrigger(d, "after"));
+    } catch (ObjectAlreadyExistsException another) {
+      return; // another node released it first
+    }
+    JobDataMap m = d.getJobDataMap();
+    m.put(Queue.K_STATUS, "waiting");
+    Queue.putSafely(scheduler, d);
+    audit("released", Map.of("job", d.getKey().getName(), "after", m.getString(Queue.K_AFTER)));
+  }
+
+  private Map<String, Integer> countByState() {
+    try {
+      return queue.countByState();
+    } catch (QueueException e) {
+      say(e.getMessage());
+      return Map.of();
+    }
+  }
+
+  private int busySlots() {
+    return slots.size() - slots.free();
   }
 
   /** Jobs running in this process now. */
   public Set<String> runningHere() {
-    return Set.copyOf(running.keySet());
+    return Set.copyOf(active.keySet());
   }
 
   /**
@@ -204,33 +318,45 @@ public final class Night implements AutoCloseable {
    */
   @Override
   public void close() {
+    // Quartz's JDBC store makes a proxy of each connection with the context class loader; a
+    // thread started from a signal handler has none ("not visible from class loader: null").
+    Thread.currentThread().setContextClassLoader(Night.class.getClassLoader());
     stopping = true;
     tick.shutdownNow();
     try {
       scheduler.standby();
-      for (String id : running.keySet()) {
+      for (Map.Entry<String, Active> e : active.entrySet()) {
+        if (e.getValue().fenced != null) {
+          continue; // another node continues it
+        }
         try {
-          JobDetail d = scheduler.getJobDetail(JobKey.jobKey(id, Queue.GROUP));
-          int prio = d == null ? 5 : Integer.parseInt(d.getJobDataMap().getString(
-              Queue.K_PRIORITY));
-          scheduler.scheduleJob(Queue.trigger(id, "resume-" + System.currentTimeMillis(), null,
-              null, prio));
-        } catch (SchedulerException e) {
-          say("could not keep " + id + " for the next serve: " + e.getMessage());
+          JobDetail d = scheduler.getJobDetail(JobKey.jobKey(e.getKey(), Queue.GROUP));
+          if (d != null) {
+            scheduler.scheduleJob(Queue.dueTrigger(d, "resume-" + System.currentTimeMillis()));
+          }
+        } catch (SchedulerException ex) {
+          say("could not keep " + e.getKey() + " for the next serve (it resumes it at start"
+              + " all the same): " + ex.getMessage());
         }
       }
       // All at once: one after the other, four slots would run past the stop bound.
       List<Runnable> stops = new ArrayList<>();
-      for (Supervisor s : running.values()) {
-        stops.add(() -> s.interrupt("serve stopping"));
-      }
-      if (options.resumer() != null) {
-        stops.add(() -> options.resumer().stopAll("serve stopping"));
+      for (Active a : active.values()) {
+        Supervisor s = a.supervisor;
+        if (s != null) {
+          stops.add(() -> s.interrupt("serve stopping"));
+        }
       }
       Stops.allAtOnce(stops);
       scheduler.shutdown(true);
     } catch (SchedulerException e) {
       say("stopping: " + e.getMessage());
+    }
+    if (meters != null) {
+      meters.close();
+    }
+    if (fence != null) {
+      fence.close();
     }
     audit("serve-stop", Map.of("node", node));
     try {

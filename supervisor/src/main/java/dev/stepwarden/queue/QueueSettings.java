@@ -59,8 +59,9 @@ public record QueueSettings(Path home, String jdbcUrl, String user, String passw
     if (jdbcUrl != null) {
       return jdbcUrl;
     }
-    // AUTO_SERVER: `queue add` and `queue list` may open the file while serve holds it.
-    return "jdbc:h2:file:" + home.resolve("queue") + ";AUTO_SERVER=TRUE";
+    // In this process only: no server mode (no listener); H2 locks the file, and commands reach a
+    // serve that holds it through its request folder. No trace file (it would be world-readable).
+    return "jdbc:h2:file:" + home.resolve("queue") + ";TRACE_LEVEL_FILE=0";
   }
 
   /** The Quartz properties: JDBC job store (JobStoreTX), string-only job data, Hikari pool. */

@@ -3,6 +3,7 @@ package dev.stepwarden.queue;
 import dev.stepwarden.rules.ConfigException;
 import dev.stepwarden.rules.GuardFile;
 import dev.stepwarden.rules.GuardFiles;
+import dev.stepwarden.supervise.RunDirectory;
 import dev.stepwarden.supervise.RunObserver;
 import dev.stepwarden.supervise.RunOutcome;
 import dev.stepwarden.supervise.Supervisor;
@@ -77,8 +78,18 @@ public final class QueuedRun implements Job {
     if (data.getString(Queue.K_CRON) != null) {
       base = base.resolve(STAMP.format(Instant.ofEpochMilli(scheduled)));
     }
+    Night.Active active = new Night.Active();
+    night.active.put(id, active);
     int slot = night.slots.take();
+    RunLock lock = null;
     try {
+      lock = RunLock.acquire(base, night.node, holder -> night.say("job " + id + " waits for"
+          + " its run directory, which another supervisor still holds: " + holder),
+          () -> night.stopping || active.fenced != null);
+      if (lock == null) {
+        data.clearDirtyFlag(); // a stopping serve re-triggers it; a fenced one is not ours
+        return;
+      }
       data.remove(Queue.K_CANCEL);
       data.put(Queue.K_STATUS, "running");
       data.put(Queue.K_NODE, night.node);
@@ -93,7 +104,14 @@ public final class QueuedRun implements Job {
       night.audit("job-start", f);
       night.say("job " + id + " started on slot " + slot + (ctx.isRecovering()
           ? " (recovering a run whose serve died)" : ""));
-      Finished r = runIn(night, id, data, base, slot);
+      Finished r = runIn(night, active, id, data, base, slot);
+      if (active.fenced != null) {
+        // another node continues (or will continue) the job: its record is that node's
+        data.clearDirtyFlag();
+        night.audit("job-given-up", Map.of("job", id, "why", active.fenced));
+        night.say("job " + id + " given up here: " + active.fenced);
+        return;
+      }
       data.put(Queue.K_STATUS, r.status());
       if (r.outcome() != null) {
         data.put(Queue.K_OUTCOME, r.outcome());
@@ -101,6 +119,9 @@ public final class QueuedRun implements Job {
       data.put(Queue.K_EXIT, Integer.toString(r.exitCode()));
       data.put(Queue.K_RUN_DIR, r.runDir().toString());
       data.put(Queue.K_REASON, r.reason() == null ? "" : r.reason());
+      if (Queue.ENDED.contains(r.status())) {
+        data.put(Queue.K_ENDED, Instant.now().toString());
+      }
       Map<String, Object> e = new LinkedHashMap<>();
       e.put("job", id);
       e.put("status", r.status());
@@ -110,14 +131,31 @@ public final class QueuedRun implements Job {
       night.audit("job-end", e);
       night.say("job " + id + " " + r.status() + (r.outcome() == null ? ""
           : " (" + r.outcome() + ", exit " + r.exitCode() + ")"));
+      if (Queue.ENDED.contains(r.status())) {
+        // recorded before the dependents are released: they must find this job ended
+        Queue.putSafely(night.scheduler, detail);
+        night.jobEnded(id);
+      }
+    } catch (IOException e) {
+      night.say("job " + id + ": cannot lock its run directory " + RunLock.file(base) + ": "
+          + e.getMessage());
+      data.put(Queue.K_STATUS, "failed");
+      data.put(Queue.K_REASON, e.getMessage());
+    } catch (InterruptedException e) {
+      Thread.currentThread().interrupt();
     } finally {
+      if (lock != null) {
+        lock.close();
+      }
+      night.active.remove(id);
       night.slots.give(slot);
     }
   }
 
   record Finished(String status, String outcome, int exitCode, String reason, Path runDir) {}
 
-  private static Finished runIn(Night night, String id, JobDataMap data, Path base, int slot) {
+  private static Finished runIn(Night night, Night.Active active, String id, JobDataMap data,
+      Path base, int slot) {
     try {
       Path dir = latestAttempt(base);
       RunState state = RunState.of(dir);
@@ -125,25 +163,24 @@ public final class QueuedRun implements Job {
         // Ended before serve could record it: record only, never run twice.
         return finished(state, dir);
       }
+      boolean resume = false;
       if (state.kind() == RunState.Kind.UNFINISHED) {
-        Night.Resumer resumer = night.options.resumer();
-        if (resumer != null) {
+        if (Files.exists(dir.resolve(RunDirectory.STATE))) {
+          resume = true;
           night.audit("job-resume", Map.of("job", id, "run_dir", dir.toString()));
-          int code = resumer.resume(dir);
-          RunState after = RunState.of(dir);
-          return after.kind() == RunState.Kind.ENDED ? finished(after, dir)
-              : new Finished(night.stopping ? "interrupted" : "failed", null, code,
-                  "resume ended with exit " + code, dir);
+        } else {
+          // its supervisor died before the first launch saved a state: start it again, in a
+          // new attempt directory (the old one is kept as it is)
+          Path next = nextAttempt(base, dir);
+          night.audit("job-retry", Map.of("job", id, "unfinished", dir.toString(),
+              "new_run_dir", next.toString(), "why", "its supervisor died before the first"
+                  + " launch; nothing ran, so the job starts again"));
+          dir = next;
         }
-        Path next = nextAttempt(base, dir);
-        night.audit("job-retry", Map.of("job", id, "unfinished", dir.toString(),
-            "new_run_dir", next.toString(),
-            "why", "this build has no run --resume; a new attempt starts from the guard file"));
-        dir = next;
       }
       data.put(Queue.K_ATTEMPTS, Integer.toString(attemptNumber(base, dir)));
-      return supervise(night, id, data, dir, slot);
-    } catch (IOException e) {
+      return supervise(night, active, id, data, dir, slot, resume);
+    } catch (IOException | IllegalStateException e) {
       return new Finished("failed", "internal-error", 1, e.getMessage(), base);
     } catch (ConfigException e) {
       return new Finished("failed", "config-error", 78, e.getMessage(), base);
@@ -160,23 +197,29 @@ public final class QueuedRun implements Job {
         s.outcome(), s.exitCode(), s.reason(), dir);
   }
 
-  private static Finished supervise(Night night, String id, JobDataMap data, Path dir, int slot)
+  /**
+   * Runs the job's supervisor, fresh or resumed: either way a full job of this slot, with the
+   * slot's GPUs and environment computed now, its meters, the median rule, cancel and quiet
+   * output.
+   */
+  private static Finished supervise(Night night, Night.Active active, String id,
+      JobDataMap data, Path dir, int slot, boolean resume)
       throws IOException, InterruptedException, ConfigException {
     GuardFile g = GuardFiles.parse(data.getString(Queue.K_GUARDS).getBytes(
         StandardCharsets.UTF_8), Path.of(data.getString(Queue.K_RULES)));
-    Map<String, String> env = new LinkedHashMap<>(g.run().env());
-    env.put("STEPWARDEN_QUEUE_JOB", id);
-    env.put("STEPWARDEN_SLOT", Integer.toString(slot));
-    String gpus = night.slots.gpus(slot);
-    if (gpus != null) {
-      env.put("CUDA_VISIBLE_DEVICES", gpus);
-    }
-    g = g.withRun(new GuardFile.Run(g.run().name(), g.run().command(), g.run().learningRate(),
-        g.run().workdir(), env, g.run().stopGrace()));
+    Map<String, String> slotEnv = new LinkedHashMap<>();
+    slotEnv.put("STEPWARDEN_QUEUE_JOB", id);
+    slotEnv.put("STEPWARDEN_SLOT", Integer.toString(slot));
+    // a slot without GPUs leaves serve's own CUDA_VISIBLE_DEVICES (a resumed run drops the
+    // value its earlier slot had)
+    slotEnv.put("CUDA_VISIBLE_DEVICES", night.slots.gpus(slot));
     // the run directory keeps the guard file as queued (with the overrides)
-    Files.createDirectories(dir);
+    Home.privateDirectories(dir.getParent());
     Path snapshot = dir.resolveSibling(dir.getFileName() + ".guards.yaml");
-    Files.writeString(snapshot, data.getString(Queue.K_GUARDS), StandardCharsets.UTF_8);
+    if (!resume) {
+      Files.writeString(Home.privateFile(snapshot), data.getString(Queue.K_GUARDS),
+          StandardCharsets.UTF_8);
+    }
     g = new GuardFile(snapshot, g.run(), g.read(), g.steer(), g.checkpoints(), g.guards(),
         g.limits());
 
@@ -186,28 +229,40 @@ public final class QueuedRun implements Job {
       meters = new RunMeters(night.options.registry(), id, g.run().learningRate(), null);
       observers.add(meters);
     }
-    Supervisor[] holder = new Supervisor[1];
-    String study = data.getString(Queue.K_STUDY);
-    if (study != null && night.options.median()) {
-      List<MedianStopping.Curve> done = completedRuns(night, study, id);
+    String cohort = Queue.cohort(data);
+    if (cohort != null && night.options.median()) {
+      List<MedianStopping.Curve> done = completedRuns(night, cohort, id);
       observers.add(MedianStopping.observer(night.options.medianSeries(), done,
-          night.options.minCompleted(), night.options.minStep(), v -> {
+          night.options.quorum(), night.options.fromStep(), v -> {
             // on a pump thread: record now, stop from another thread (stopping drains pumps)
             medianStop(night, id, dir, v);
-            Thread t = new Thread(() -> holder[0].interrupt(v.summary()), "stepwarden-median");
-            t.setDaemon(true);
-            t.start();
+            Supervisor s = active.supervisor;
+            Night.offThread("stepwarden-median", () -> s.interrupt(v.summary()));
           }));
     }
-    Supervisor s = new Supervisor(g, new Supervisor.Options(dir, true, null,
-        night.options.console(), all(observers)));
-    holder[0] = s;
-    night.running.put(id, s);
+    Supervisor.Options options = new Supervisor.Options(dir, true, null,
+        night.options.console(), all(observers));
+    Supervisor s;
+    if (resume) {
+      s = Supervisor.resume(dir, g, options, slotEnv);
+    } else {
+      Map<String, String> env = new LinkedHashMap<>(g.run().env());
+      slotEnv.forEach((k, v) -> {
+        if (v != null) {
+          env.put(k, v);
+        }
+      });
+      s = new Supervisor(g.withRun(new GuardFile.Run(g.run().name(), g.run().command(),
+          g.run().learningRate(), g.run().workdir(), env, g.run().stopGrace())), options);
+    }
+    active.supervisor = s;
+    if (night.stopping || active.fenced != null) {
+      return new Finished("interrupted", "interrupted", 130, "serve stopping", dir);
+    }
     Supervisor.Result r;
     try {
       r = s.run();
     } finally {
-      night.running.remove(id);
       if (meters != null) {
         meters.close();
       }
@@ -243,8 +298,9 @@ public final class QueuedRun implements Job {
     }
   }
 
-  /** The completed runs of a study, read from their run directories. */
-  private static List<MedianStopping.Curve> completedRuns(Night night, String study, String self)
+  /** The completed runs of a cohort, read from their run directories. */
+  private static List<MedianStopping.Curve> completedRuns(Night night, String cohort,
+      String self)
       throws IOException {
     List<MedianStopping.Curve> out = new ArrayList<>();
     try {
@@ -255,14 +311,14 @@ public final class QueuedRun implements Job {
         }
         JobDataMap m = d.getJobDataMap();
         String dir = m.getString(Queue.K_RUN_DIR);
-        if (study.equals(m.getString(Queue.K_STUDY)) && dir != null
+        if (cohort.equals(Queue.cohort(m)) && dir != null
             && ("done".equals(m.getString(Queue.K_STATUS))
                 || "median-stopped".equals(m.getString(Queue.K_STATUS)))) {
           out.add(MedianStopping.read(k.getName(), Path.of(dir), night.options.medianSeries()));
         }
       }
     } catch (SchedulerException e) {
-      throw new IOException("cannot read the study's runs: " + e.getMessage(), e);
+      throw new IOException("cannot read the cohort's runs: " + e.getMessage(), e);
     }
     return out;
   }

@@ -73,6 +73,10 @@ final class Slots {
     free.addFirst(slot);
   }
 
+  synchronized int free() {
+    return free.size();
+  }
+
   String gpus(int slot) {
     return gpus.get(slot);
   }

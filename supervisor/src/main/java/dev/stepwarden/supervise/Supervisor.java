@@ -253,6 +253,16 @@ public final class Supervisor {
    */
   public static Supervisor resume(Path runDir, GuardFile rules, Options options)
       throws IOException {
+    return resume(runDir, rules, options, Map.of());
+  }
+
+  /**
+   * As {@link #resume(Path, GuardFile, Options)}, with {@code env} laid over the saved
+   * environment (a null value removes a variable): what belongs to where the run continues,
+   * not to the run, such as the GPUs of the queue slot that resumes it.
+   */
+  public static Supervisor resume(Path runDir, GuardFile rules, Options options,
+      Map<String, String> env) throws IOException {
     Path root = runDir.toAbsolutePath().normalize();
     JsonNode state = StateFile.read(root.resolve(RunDirectory.STATE));
     // An interrupted run was stopped from outside, not finished: it may go on (a serve that
@@ -262,7 +272,17 @@ public final class Supervisor {
       throw new IllegalStateException("the run in " + root + " already ended ("
           + state.path("outcome").asString("?") + "); there is nothing to resume");
     }
-    GuardFile g = rules.withRun(StateFile.run(state.path("run")));
+    GuardFile.Run saved = StateFile.run(state.path("run"));
+    Map<String, String> merged = new LinkedHashMap<>(saved.env());
+    env.forEach((k, v) -> {
+      if (v == null) {
+        merged.remove(k);
+      } else {
+        merged.put(k, v);
+      }
+    });
+    GuardFile g = rules.withRun(new GuardFile.Run(saved.name(), saved.command(),
+        saved.learningRate(), saved.workdir(), merged, saved.stopGrace()));
     Supervisor s = new Supervisor(g, new Options(root, options.quiet(), options.clock(),
         options.console(), options.observer(), options.preemption(), options.copyVault()));
     s.resumed = state;

@@ -35,7 +35,14 @@ public final class MetricsServer implements AutoCloseable {
 
   /** A registry for stepwarden meters. */
   public static PrometheusMeterRegistry newRegistry() {
-    return new PrometheusMeterRegistry(PrometheusConfig.DEFAULT);
+    PrometheusMeterRegistry r = new PrometheusMeterRegistry(PrometheusConfig.DEFAULT);
+    // the build behind the page, as an info-style gauge of constant 1 (Prometheus practice)
+    String v = MetricsServer.class.getPackage().getImplementationVersion();
+    io.micrometer.core.instrument.Gauge.builder("stepwarden.build.info", () -> 1)
+        .tags("version", v == null ? "development" : v, "java",
+            System.getProperty("java.version", "?"))
+        .description("The stepwarden build serving this page").register(r);
+    return r;
   }
 
   /**

@@ -32,7 +32,10 @@ import java.util.concurrent.atomic.AtomicLong;
  * <p>Meters (Prometheus names): {@code stepwarden_learning_rate}, {@code stepwarden_series_last
  * {series}}, {@code stepwarden_interventions_total{guard,action}}, {@code
  * stepwarden_rewinds_total}, {@code stepwarden_restarts_total}, {@code stepwarden_lines_read_total},
- * {@code stepwarden_lines_ignored_total}, {@code stepwarden_seconds_since_metric}.
+ * {@code stepwarden_lines_ignored_total}, {@code stepwarden_last_metric_timestamp_seconds} (when
+ * the trainer last printed a metric, or was launched: a timestamp in seconds, so that the age is
+ * {@code time() - stepwarden_last_metric_timestamp_seconds} in the query and the page itself
+ * does not change between scrapes of an idle run; Prometheus's naming practice for times).
  */
 public final class RunMeters implements RunObserver {
   private final MeterRegistry registry;
@@ -72,10 +75,10 @@ public final class RunMeters implements RunObserver {
     rate.v = startRate;
     keep(Gauge.builder("stepwarden.learning.rate", rate, Value::get).tags(tags)
         .description("The learning rate in force").register(registry));
-    keep(Gauge.builder("stepwarden.seconds.since.metric", this,
-            m -> (m.clock.millis() - m.lastMetricMillis.get()) / 1000.0)
-        .tags(tags).description("Seconds since the trainer last printed a metric")
-        .register(registry));
+    keep(Gauge.builder("stepwarden.last.metric.timestamp", lastMetricMillis,
+            ms -> ms.get() / 1000.0).baseUnit("seconds")
+        .tags(tags).description("When the trainer last printed a metric (or was launched), in"
+            + " seconds since the Unix epoch").register(registry));
     keep(FunctionCounter.builder("stepwarden.lines.read", linesRead, AtomicLong::doubleValue)
         .tags(tags).description("Trainer output lines read").register(registry));
     keep(FunctionCounter.builder("stepwarden.lines.ignored", linesIgnored,

@@ -69,6 +69,14 @@ class ContainerFilesTest {
       nodes++;
     }
     assertThat(nodes).isEqualTo(2);
+    // either node may run or take over any job: both see the runs, the guard files and the
+    // trainer's folder at the same paths
+    List<String> mountsA = new ArrayList<>();
+    services.get("node-a").get("volumes").forEach(n -> mountsA.add(n.asString()));
+    List<String> mountsB = new ArrayList<>();
+    services.get("node-b").get("volumes").forEach(n -> mountsB.add(n.asString()));
+    assertThat(mountsA).isEqualTo(mountsB).anyMatch(m -> m.contains(":/var/lib/stepwarden/runs"))
+        .anyMatch(m -> m.contains("/guards:")).anyMatch(m -> m.contains("/trainer:"));
     // the `queue add` shown in the file's comment is a real command too
     String comment = Files.readAllLines(DOCKER.resolve("compose.yaml")).stream()
         .filter(l -> l.startsWith("#")).map(l -> l.substring(1).strip().replace("\\", ""))

@@ -60,6 +60,18 @@ final class Fixtures {
     return out.toString();
   }
 
+  /** Runs {@code stepwarden ARGS} in this JVM, expecting exit {@code code}; returns stderr. */
+  static String failing(int code, String... args) {
+    StringWriter out = new StringWriter();
+    StringWriter err = new StringWriter();
+    int got = Main.execute(args, new PrintWriter(out, true), new PrintWriter(err, true));
+    if (got != code) {
+      throw new AssertionError("stepwarden " + String.join(" ", args) + " exited " + got
+          + " (expected " + code + "): " + out + err);
+    }
+    return err.toString();
+  }
+
   static boolean await(BooleanSupplier condition, long millis) throws InterruptedException {
     long end = System.nanoTime() + millis * 1_000_000;
     while (!condition.getAsBoolean()) {

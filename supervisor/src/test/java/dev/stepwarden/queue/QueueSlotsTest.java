@@ -30,8 +30,8 @@ class QueueSlotsTest {
             Map.of("run.name", "night-" + i), null, tmp)));
       }
       assertThat(q.list()).extracting(JobView::status).containsOnly("waiting");
-      Night night = q.serve(new Night.Options(List.of("0", "1"), null, null,
-          new PrintStream(console, true, StandardCharsets.UTF_8), true, null, 3, 0));
+      Night night = q.serve(new Night.Options(List.of("0", "1"), null,
+          new PrintStream(console, true, StandardCharsets.UTF_8), true, null, 3, 0, null));
       try {
         boolean done = Fixtures.await(() -> {
           try {

@@ -69,9 +69,9 @@ class ServeRecoveryTest {
     });
     JsonNode first = jobs.stream().filter(j -> j.get("id").asString().equals(running))
         .findFirst().orElseThrow();
-    // the unfinished run directory is kept as evidence; without `run --resume` in this build
-    // the job continues in a second attempt directory, with --resume in the same one
-    String dir = first.get("runDir").asString();
+    // the job continues in its own run directory (resumed from its state); a job whose
+    // supervisor died before its first launch would continue in a second attempt directory
+    String dir = first.get("run_dir").asString();
     assertThat(Path.of(dir).getFileName().toString()).isIn(running, running + ".2");
     assertThat(Fixtures.read(Path.of(dir).resolve("audit.jsonl"))).contains("\"run-end\"");
     // nothing ran twice to completion: each job's trainer ended exactly once
