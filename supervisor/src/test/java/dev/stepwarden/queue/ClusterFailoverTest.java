@@ -67,7 +67,7 @@ class ClusterFailoverTest {
       String started = "job " + id + " started on slot 0";
       assertThat(Fixtures.await(() -> logs.stream().anyMatch(l -> Fixtures.read(l)
           .contains(started)) && Fixtures.read(runs.resolve(id).resolve("metrics.jsonl"))
-          .lines().count() >= 2, 60_000)).as("a node starts the job:\n" + Fixtures.read(
+          .lines().count() >= 2, 90_000)).as("a node starts the job:\n" + Fixtures.read(
           logs.get(0)) + Fixtures.read(logs.get(1))).isTrue();
       int victim = Fixtures.read(logs.get(0)).contains(started) ? 0 : 1;
       int survivor = 1 - victim;
@@ -76,7 +76,7 @@ class ClusterFailoverTest {
 
       Path log = logs.get(survivor);
       assertThat(Fixtures.await(() -> Fixtures.read(log).contains("job " + id + " done"),
-          45_000)).as("the survivor finishes it:\n" + Fixtures.read(log)).isTrue();
+          90_000)).as("the survivor finishes it:\n" + Fixtures.read(log)).isTrue();
       assertThat(Fixtures.read(log)).contains(started + " (recovering a run whose serve died)");
       try (Queue q = Queue.open(client)) {
         JobView v = q.get(id);
@@ -118,17 +118,17 @@ class ClusterFailoverTest {
       Process a = node(logA, "A", prefix, runs);
       nodes.add(a);
       assertThat(Fixtures.await(() -> Fixtures.read(runs.resolve(id).resolve("metrics.jsonl"))
-          .lines().count() >= 3, 30_000)).as("node A runs the job:\n" + Fixtures.read(logA))
+          .lines().count() >= 3, 90_000)).as("node A runs the job:\n" + Fixtures.read(logA))
           .isTrue();
       Process b = node(logB, "B", prefix, runs);
       nodes.add(b);
       assertThat(Fixtures.await(() -> Fixtures.read(logB).contains("stepwarden serve: node"),
-          30_000)).as("node B is up:\n" + Fixtures.read(logB)).isTrue();
+          90_000)).as("node B is up:\n" + Fixtures.read(logB)).isTrue();
       long trainerA = Long.parseLong(Fixtures.events(events).get(0)[3]);
 
       signal("STOP", a.pid()); // a frozen VM: no check-in, while its trainer goes on
       assertThat(Fixtures.await(() -> Fixtures.read(logB).contains("job " + id
-          + " waits for its run directory"), 40_000))
+          + " waits for its run directory"), 90_000))
           .as("node B takes the job over and waits for the run directory:\n"
               + Fixtures.read(logB)).isTrue();
       assertThat(ProcessHandle.of(trainerA).map(ProcessHandle::isAlive).orElse(false))
@@ -144,12 +144,12 @@ class ClusterFailoverTest {
 
       // node B gets the run directory once A let go, and resumes the run there
       assertThat(Fixtures.await(() -> Fixtures.read(audit).split("\"type\":\"launch\"", -1)
-          .length == 3, 60_000)).as("node B resumes the run:\n" + Fixtures.read(logB)).isTrue();
+          .length == 3, 90_000)).as("node B resumes the run:\n" + Fixtures.read(logB)).isTrue();
       try (Queue q = Queue.open(client)) {
         q.cancel(id);
       }
       assertThat(Fixtures.await(() -> Fixtures.read(logB).contains("job " + id + " cancelled"),
-          60_000)).as("node B stops it on cancel:\n" + Fixtures.read(logB)).isTrue();
+          90_000)).as("node B stops it on cancel:\n" + Fixtures.read(logB)).isTrue();
       assertThat(Fixtures.read(logA)).contains("job " + id + " given up here");
       assertThat(Fixtures.events(events).stream().filter(e -> e[0].equals("end")))
           .as("no trainer ran to its end").isEmpty();

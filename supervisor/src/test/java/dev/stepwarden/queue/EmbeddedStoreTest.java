@@ -48,13 +48,13 @@ class EmbeddedStoreTest {
     Process serve = Fixtures.stepwarden(log, "serve", "--home", h, "--slots", "1");
     try {
       assertThat(Fixtures.await(() -> Fixtures.read(log).contains("stepwarden serve: node"),
-          30_000)).as("serve is up:\n" + Fixtures.read(log)).isTrue();
+          90_000)).as("serve is up:\n" + Fixtures.read(log)).isTrue();
 
       // a command while serve holds the store: passed to serve through the request folder
       String id = Fixtures.cli("queue", "add", "--home", h, "--rules", rules.toString(),
           "--set", "run.name=private").strip();
       assertThat(Fixtures.await(() -> Fixtures.read(log).contains("job " + id + " done"),
-          30_000)).as("the job runs:\n" + Fixtures.read(log)).isTrue();
+          90_000)).as("the job runs:\n" + Fixtures.read(log)).isTrue();
       List<JsonNode> jobs = listJson(h);
       assertThat(jobs).hasSize(1);
       assertThat(jobs.get(0).has("run_dir")).isTrue();
@@ -126,7 +126,7 @@ class EmbeddedStoreTest {
     Path log1 = tmp.resolve("serve1.log");
     Process first = Fixtures.stepwarden(log1, "serve", "--home", h, "--gpus", "3");
     try {
-      assertThat(Fixtures.await(() -> Fixtures.read(metrics).lines().count() >= 3, 30_000))
+      assertThat(Fixtures.await(() -> Fixtures.read(metrics).lines().count() >= 3, 90_000))
           .as("the job runs on GPU 3:\n" + Fixtures.read(log1)).isTrue();
       first.destroy(); // SIGTERM: the job is stopped and kept for the next serve
       assertThat(first.waitFor(30, TimeUnit.SECONDS)).isTrue();
@@ -142,7 +142,7 @@ class EmbeddedStoreTest {
     try {
       long before = Fixtures.read(metrics).lines().count();
       assertThat(Fixtures.await(() -> Fixtures.read(metrics).lines().count() >= before + 2,
-          30_000)).as("the job resumes:\n" + Fixtures.read(log2)).isTrue();
+          90_000)).as("the job resumes:\n" + Fixtures.read(log2)).isTrue();
       String page = scrape(log2);
       assertThat(page).contains("stepwarden_learning_rate{run=\"" + id + "\"}")
           .contains("stepwarden_queue_jobs{state=\"running\"} 1.0")
@@ -153,7 +153,7 @@ class EmbeddedStoreTest {
 
       Fixtures.cli("queue", "cancel", "--home", h, id); // cancel reaches a resumed job
       assertThat(Fixtures.await(() -> Fixtures.read(log2).contains("job " + id + " cancelled"),
-          30_000)).as("cancelled:\n" + Fixtures.read(log2)).isTrue();
+          90_000)).as("cancelled:\n" + Fixtures.read(log2)).isTrue();
     } finally {
       second.destroy();
       second.waitFor(20, TimeUnit.SECONDS);

@@ -41,7 +41,7 @@ class QueueOrderTest {
       } catch (QueueException e) {
         return false;
       }
-    }, 60_000);
+    }, 90_000);
   }
 
   private static List<String> startOrder(Path events) throws Exception {
@@ -61,7 +61,7 @@ class QueueOrderTest {
       Night night = serve(q, 1);
       try {
         String blocker = add(q, slow, "blocker", 5, null, null);
-        assertThat(Fixtures.await(() -> night.runningHere().contains(blocker), 20_000))
+        assertThat(Fixtures.await(() -> night.runningHere().contains(blocker), 90_000))
             .as("the blocker runs:\n" + console).isTrue();
         // while the only slot is busy: a low one now, an --at one whose time passes while it
         // waits, then a high and a middle one

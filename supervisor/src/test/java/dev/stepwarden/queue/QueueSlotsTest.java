@@ -39,7 +39,7 @@ class QueueSlotsTest {
           } catch (QueueException e) {
             return false;
           }
-        }, 25_000);
+        }, 90_000);
         assertThat(done).as("all done; serve said:\n" + console).isTrue();
       } finally {
         night.close();
@@ -99,7 +99,7 @@ class QueueSlotsTest {
           } catch (QueueException e) {
             return false;
           }
-        }, 20_000)).isTrue();
+        }, 90_000)).isTrue();
         assertThat(q.get(dropped).status()).isEqualTo("cancelled");
       } finally {
         night.close();

@@ -32,7 +32,7 @@ class ServeRecoveryTest {
       Path audit = home.resolve("runs").resolve(running).resolve("audit.jsonl");
       assertThat(Fixtures.await(() -> Fixtures.read(audit).contains("\"launch\"")
           && Fixtures.read(home.resolve("runs").resolve(running).resolve("metrics.jsonl"))
-              .lines().count() >= 3, 20_000))
+              .lines().count() >= 3, 90_000))
           .as("the first job runs; serve said:\n" + Fixtures.read(log1)).isTrue();
       long trainerPid = Long.parseLong(Fixtures.events(events).get(0)[3]);
 
@@ -48,9 +48,9 @@ class ServeRecoveryTest {
       again = Fixtures.stepwarden(log2, "serve", "--home", h, "--slots", "1");
       Process a = again;
       assertThat(Fixtures.await(() -> Fixtures.read(log2).contains("job " + queued + " done"),
-          25_000)).as("both jobs end; serve said:\n" + Fixtures.read(log2)).isTrue();
+          90_000)).as("both jobs end; serve said:\n" + Fixtures.read(log2)).isTrue();
       a.destroy();
-      assertThat(a.waitFor(15, TimeUnit.SECONDS)).isTrue();
+      assertThat(a.waitFor(30, TimeUnit.SECONDS)).isTrue();
       assertThat(Fixtures.read(log2)).contains("job " + running + " started on slot 0"
           + " (recovering a run whose serve died)");
     } finally {

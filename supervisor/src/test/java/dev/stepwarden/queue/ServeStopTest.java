@@ -48,9 +48,9 @@ class ServeStopTest {
     Process third = Fixtures.stepwarden(log3, "serve", "--home", h, "--slots", "1");
     try {
       assertThat(Fixtures.await(() -> Fixtures.read(log3).contains("job " + id + " done"),
-          30_000)).as("the job ends; serve said:\n" + Fixtures.read(log3)).isTrue();
+          90_000)).as("the job ends; serve said:\n" + Fixtures.read(log3)).isTrue();
       third.destroy();
-      assertThat(third.waitFor(15, TimeUnit.SECONDS)).as("serve exits on SIGTERM when idle")
+      assertThat(third.waitFor(30, TimeUnit.SECONDS)).as("serve exits on SIGTERM when idle")
           .isTrue();
       assertThat(third.exitValue()).isEqualTo(143);
     } finally {
@@ -80,7 +80,7 @@ class ServeStopTest {
     Process serve = Fixtures.stepwarden(log, "serve", "--home", h, "--slots", "1");
     try {
       assertThat(Fixtures.await(() -> Fixtures.read(home.resolve("runs").resolve(id)
-          .resolve("metrics.jsonl")).lines().count() >= 3, 30_000))
+          .resolve("metrics.jsonl")).lines().count() >= 3, 90_000))
           .as("the job runs; serve said:\n" + Fixtures.read(log)).isTrue();
       serve.destroy();
       assertThat(Fixtures.await(() -> Fixtures.read(home.resolve("runs").resolve(id)
@@ -124,7 +124,7 @@ class ServeStopTest {
     Process serve = Fixtures.stepwarden(log, "serve", "--home", h, "--slots", "2");
     try {
       assertThat(Fixtures.await(() -> ids.stream().allMatch(id -> Fixtures.read(home
-          .resolve("runs").resolve(id).resolve("metrics.jsonl")).lines().count() >= 3), 30_000))
+          .resolve("runs").resolve(id).resolve("metrics.jsonl")).lines().count() >= 3), 90_000))
           .as("both jobs run; serve said:\n" + Fixtures.read(log)).isTrue();
       serve.destroy();
       assertThat(serve.waitFor(30, TimeUnit.SECONDS)).as(Fixtures.read(log)).isTrue();
@@ -151,13 +151,13 @@ class ServeStopTest {
   private static void stopWhileRunning(Process serve, Path log, Path metrics, long lines,
       Path events, int startIndex) throws Exception {
     try {
-      assertThat(Fixtures.await(() -> Fixtures.read(metrics).lines().count() >= lines, 30_000))
+      assertThat(Fixtures.await(() -> Fixtures.read(metrics).lines().count() >= lines, 90_000))
           .as("the job runs; serve said:\n" + Fixtures.read(log)).isTrue();
       long trainerPid = Long.parseLong(Fixtures.events(events).get(startIndex)[3]);
       serve.destroy(); // SIGTERM
       // the trainer's grace is 2 s; 15 s leaves room for a loaded machine, far below the
       // 60 s bound the stop gives up at
-      assertThat(serve.waitFor(15, TimeUnit.SECONDS)).as("serve stops in order; it said:\n"
+      assertThat(serve.waitFor(30, TimeUnit.SECONDS)).as("serve stops in order; it said:\n"
           + Fixtures.read(log)).isTrue();
       assertThat(serve.exitValue()).as(Fixtures.read(log)).isEqualTo(143);
       assertThat(ProcessHandle.of(trainerPid).map(ProcessHandle::isAlive).orElse(false))
