@@ -21,7 +21,8 @@ import tools.jackson.databind.SerializationFeature;
 import tools.jackson.databind.json.JsonMapper;
 
 @Command(name = "replay", description = "Dry-run the guards of a guard file over a recorded"
-    + " metrics file (a run directory's metrics.jsonl, a trainer log, or CSV) with the very"
+    + " metrics file (a run directory's metrics.jsonl, a trainer log, CSV or an event file)"
+    + " with the very"
     + " engine of a live run, and say when each guard would have fired and why. Decisions after"
     + " the replay left the recorded course are marked hypothetical.", footer = {"", "Examples:",
         "  stepwarden replay --rules rules/overnight.yaml runs/night-1/metrics.jsonl",
@@ -38,7 +39,7 @@ final class ReplayCommand implements Callable<Integer> {
   Path rules;
 
   @Option(names = "--input", paramLabel = "KIND", description = "How to read METRICS_FILE:"
-      + " auto (default), normalized, raw or csv.")
+      + " auto (default), normalized, raw, csv or events.")
   String input = "auto";
 
   @Option(names = "--json", description = "Print the same facts as JSON, for scripts.")
@@ -69,7 +70,7 @@ final class ReplayCommand implements Callable<Integer> {
         try {
           kind = Replay.Input.valueOf(input.toUpperCase(Locale.ROOT));
         } catch (IllegalArgumentException e) {
-          err.println("stepwarden: --input " + input + ": say auto, normalized, raw or csv");
+          err.println("stepwarden: --input " + input + ": say auto, normalized, raw, csv or events");
           return ExitCodes.USAGE;
         }
         r = Replay.run(g, f, kind);

@@ -6,7 +6,11 @@ package dev.stepwarden.metrics;
  * Empty and non-numeric cells are passed over, so a file whose validation column is filled only
  * every few rows reads naturally. A row whose cells are all non-numeric text is taken as a new
  * header: a file that was truncated or rotated and starts over with its header re-reads it.
- * The separator is each header's first comma, tab or semicolon (comma when it has none).
+ * The separator is the one of comma, tab and semicolon that the header has most of outside
+ * quotes (comma when it has none); a byte-order mark before the header is dropped. A cell that
+ * would be a number but for a comma ({@code 1,234.5} or {@code 0,5} in a semicolon file) is
+ * passed over and reported as ambiguous, never read as part of itself.
+ * {@code run} and {@code replay} both read CSV through this class.
  */
 final class CsvLineParser implements LineParser {
   private final KeyCache keys = new KeyCache();
@@ -22,6 +26,9 @@ final class CsvLineParser implements LineParser {
   public boolean parse(String line, Fields out) {
     if (line.isBlank()) {
       return false;
+    }
+    if (!line.isEmpty() && line.charAt(0) == '\uFEFF') {
+      line = line.substring(1);
     }
     if (header == null) {
       sep = separator(line);
@@ -65,19 +72,49 @@ final class CsvLineParser implements LineParser {
       if (!Decimals.failed(v) && !header[i].isEmpty()) {
         out.put(header[i], v);
         any = true;
+      } else if (!quoted[i] && !header[i].isEmpty() && commaNumber(line, starts[i], ends[i])) {
+        out.ambiguous(header[i]);
       }
     }
     return any;
   }
 
   private static char separator(String headerLine) {
+    int commas = 0;
+    int tabs = 0;
+    int semicolons = 0;
+    boolean inQuotes = false;
     for (int i = 0; i < headerLine.length(); i++) {
       char c = headerLine.charAt(i);
-      if (c == ',' || c == '\t' || c == ';') {
-        return c;
+      if (c == '"') {
+        inQuotes = !inQuotes;
+      } else if (!inQuotes) {
+        commas += c == ',' ? 1 : 0;
+        tabs += c == '\t' ? 1 : 0;
+        semicolons += c == ';' ? 1 : 0;
       }
     }
-    return ',';
+    if (tabs > commas && tabs >= semicolons) {
+      return '\t';
+    }
+    return semicolons > commas ? ';' : ',';
+  }
+
+  /** Digits with a comma among them (and perhaps a point, sign or exponent): 1,234.5 or 0,5. */
+  private static boolean commaNumber(String line, int from, int to) {
+    boolean comma = false;
+    boolean digit = false;
+    for (int i = from; i < to; i++) {
+      char c = line.charAt(i);
+      if (c == ',') {
+        comma = true;
+      } else if (c >= '0' && c <= '9') {
+        digit = true;
+      } else if (c != '.' && c != '-' && c != '+' && c != 'e' && c != 'E') {
+        return false;
+      }
+    }
+    return comma && digit;
   }
 
   /** Splits into cells (trimmed bounds for unquoted ones); returns the count. */

@@ -36,6 +36,12 @@ interface LineParser {
     default boolean wants(int id) {
       return true;
     }
+
+    /**
+     * A value the parser passed over because it cannot be read one way only, such as {@code
+     * loss=1,234.5} (a thousands separator, or the value 1 and a stray 234.5?).
+     */
+    default void ambiguous(String key) {}
   }
 
   /** Parses {@code line}; returns false when the line carries no metric at all. */

@@ -94,10 +94,16 @@ public final class MetricsIntake {
     public boolean wants(int id) {
       return !unwanted[id];
     }
+
+    @Override
+    public void ambiguous(String key) {
+      ambiguous++;
+    }
   };
   private long lines;
   private long metricLines;
   private long ignored;
+  private long ambiguous;
   private long oversized;
   private long inferredStep;
   private long lastStep = -1;
@@ -144,6 +150,8 @@ public final class MetricsIntake {
       case PAIRS -> new PairsLineParser();
       case PATTERN -> new PatternLineParser(plan.pattern());
       case CSV -> new CsvLineParser();
+      case PYTHON_DICT -> new PythonDictLineParser();
+      case TFRECORD -> new JsonLineParser(); // the event reader hands on JSON lines
     };
   }
 
@@ -385,6 +393,14 @@ public final class MetricsIntake {
   }
 
   /** Lines that carried none of the configured series. */
+  /**
+   * Values passed over because they read two ways ({@code loss=1,234.5}); such a value is
+   * never taken as a shortened number.
+   */
+  public long ambiguousValues() {
+    return ambiguous;
+  }
+
   public long ignoredLines() {
     return ignored;
   }

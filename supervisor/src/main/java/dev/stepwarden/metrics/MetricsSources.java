@@ -28,7 +28,8 @@ public final class MetricsSources implements AutoCloseable {
   private final ReadPlan plan;
   private final List<ReadPlan> sources;
   private final List<MetricsIntake> intakes = new ArrayList<>();
-  private final List<FileFollower> followers = new ArrayList<>();
+  /** How to stop each follower (line files and event files alike). */
+  private final List<Runnable> followers = new ArrayList<>();
   private final Path[] resolved;
   private boolean warned;
 
@@ -97,8 +98,13 @@ public final class MetricsSources implements AutoCloseable {
       Path f = workdir.resolve(p.file());
       resolved[i] = f;
       int index = i;
-      followers.add(new FileFollower(f, interval, p.lineLimit(),
-          (line, cut) -> sink.line(index, line, cut)).start());
+      if (p.format() == ReadPlan.Format.TFRECORD) {
+        followers.add(new EventFileFollower(f, interval, p.stepKey(),
+            line -> sink.line(index, line, false)).start()::close);
+      } else {
+        followers.add(new FileFollower(f, interval, p.lineLimit(),
+            (line, cut) -> sink.line(index, line, cut)).start()::close);
+      }
     }
   }
 
@@ -193,7 +199,7 @@ public final class MetricsSources implements AutoCloseable {
   /** Stops the file followers (each delivers what was written before). */
   @Override
   public synchronized void close() {
-    followers.forEach(FileFollower::close);
+    followers.forEach(Runnable::run);
     followers.clear();
   }
 }

@@ -5,7 +5,9 @@ package dev.stepwarden.metrics;
  *
  * <p>A key is a run of letters, digits and {@code _./-} (from its first letter or underscore),
  * then optional blanks, {@code =} or {@code :}, optional blanks, and a value that runs to the next
- * blank, comma, pipe or semicolon. A hand-written single pass rather than a regular expression:
+ * blank, comma, pipe or semicolon. A number followed by a comma and a digit ({@code
+ * loss=1,234.5}: a thousands separator, or 1 and a stray 234.5?) is passed over and reported as
+ * ambiguous, never read as 1. A hand-written single pass rather than a regular expression:
  * the obvious pattern backtracks quadratically on a long line without a separator (a 1 MiB
  * progress bar took minutes), and this parser runs on the pump thread.
  */
@@ -50,6 +52,11 @@ final class PairsLineParser implements LineParser {
       if (j == valueStart) {
         continue;
       }
+      if (j + 1 < n && line.charAt(j) == ',' && isDigit(line.charAt(j + 1))) {
+        out.ambiguous(line.substring(k, end));
+        i = j; // the digits after the comma start no key
+        continue;
+      }
       double v = Decimals.parse(line, valueStart, j);
       if (!Decimals.failed(v)) {
         out.put(line.substring(k, end), v);
@@ -58,6 +65,10 @@ final class PairsLineParser implements LineParser {
       i = j;
     }
     return any;
+  }
+
+  private static boolean isDigit(char c) {
+    return c >= '0' && c <= '9';
   }
 
   private static boolean isKeyStart(char c) {

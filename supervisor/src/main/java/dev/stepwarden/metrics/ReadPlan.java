@@ -33,7 +33,11 @@ public record ReadPlan(Source source, Path file, Format format, Pattern pattern,
 
   public enum Source { STDOUT, STDERR, FILE }
 
-  public enum Format { JSON, PAIRS, PATTERN, CSV }
+  /**
+   * How a source is written. {@code PYTHON_DICT}: a Python dict literal a line; {@code TFRECORD}:
+   * an event file of TFRecord-framed summaries (a file source only, read as records, not lines).
+   */
+  public enum Format { JSON, PAIRS, PATTERN, CSV, PYTHON_DICT, TFRECORD }
 
   /** The key a trainer prints to confirm it applied a control-file revision. */
   public static final String APPLIED_REVISION_KEY = "applied_revision";
@@ -50,6 +54,9 @@ public record ReadPlan(Source source, Path file, Format format, Pattern pattern,
     }
     if (source == Source.FILE && file == null) {
       throw new IllegalArgumentException("source FILE needs a file");
+    }
+    if (format == Format.TFRECORD && source != Source.FILE) {
+      throw new IllegalArgumentException("format TFRECORD reads a file, not " + source);
     }
     if (format == Format.PATTERN && pattern == null) {
       throw new IllegalArgumentException("format PATTERN needs a pattern");

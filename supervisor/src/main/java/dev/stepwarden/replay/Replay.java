@@ -1,5 +1,6 @@
 package dev.stepwarden.replay;
 
+import dev.stepwarden.metrics.EventFileFollower;
 import dev.stepwarden.metrics.MetricsIntake;
 import dev.stepwarden.metrics.ReadPlan;
 import dev.stepwarden.engine.Decision;
@@ -41,8 +42,10 @@ public final class Replay {
     NORMALIZED,
     /** A trainer's own output, read through the guard file's read plan. */
     RAW,
-    /** Comma-separated values with a header row naming the columns. */
-    CSV
+    /** Values separated by commas, semicolons or tabs, with a header row naming the columns. */
+    CSV,
+    /** An event file of TFRecord-framed summaries; scalar tags are the keys. */
+    EVENTS
   }
 
   /**
@@ -61,6 +64,7 @@ public final class Replay {
    * @param lines lines read
    * @param samples samples fed to the engine
    * @param ignoredLines lines that carried no configured series
+   * @param ambiguousValues values passed over because they read two ways ({@code 1,234.5})
    * @param fired the decisions in order
    * @param departedAtStep the step from which the recorded curve no longer shows what would
    *     have happened, or -1 when the replay never left the recorded course
@@ -70,7 +74,7 @@ public final class Replay {
    * @param nanos time spent, for the throughput figure
    */
   public record Result(Input input, long lines, long samples, long ignoredLines,
-      List<Fired> fired, long departedAtStep, String departure, long endedAtStep,
+      long ambiguousValues, List<Fired> fired, long departedAtStep, String departure, long endedAtStep,
       long unreadLines, long nanos) {
     public Result {
       fired = List.copyOf(fired);
@@ -101,16 +105,18 @@ public final class Replay {
   }
 
   /** Replays {@code file} read as {@code input}. */
-  public static Result run(GuardFile rules, Path file, Input input) throws IOException {
+  public static Result run(GuardFile rules, Path file, Input requested) throws IOException {
     requireFile(file);
+    // a guard file that reads an event file reads it as one, however the name looks
+    Input input = requested == Input.RAW && rules.read().format() == ReadPlan.Format.TFRECORD
+        ? Input.EVENTS : requested;
     long start = System.nanoTime();
     GuardEngine engine = new GuardEngine(rules);
     ReadPlan plan = switch (input) {
       case NORMALIZED -> normalizedPlan(rules.read());
       case RAW -> rules.read();
-      case CSV -> new ReadPlan(rules.read().source(), rules.read().file(), ReadPlan.Format.JSON,
-          null, rules.read().stepKey(), rules.read().epochKey(), rules.read().rateKey(),
-          rules.read().series());
+      case CSV -> withFormat(rules.read(), ReadPlan.Format.CSV);
+      case EVENTS -> withFormat(rules.read(), ReadPlan.Format.TFRECORD);
     };
     MetricsIntake intake = new MetricsIntake(plan);
     List<Fired> fired = new ArrayList<>();
@@ -122,25 +128,15 @@ public final class Replay {
     boolean awaitingRewind = false;
     long rewindStep = 0;
     long previousStep = Long.MIN_VALUE;
-    try (BufferedReader r = Files.newBufferedReader(file, StandardCharsets.UTF_8)) {
+    try (LineSource r = lines(file, input, plan)) {
       String line;
-      String[] header = null;
-      while ((line = r.readLine()) != null) {
+      while ((line = r.next()) != null) {
         if (endedAt >= 0) {
           unread++;
           continue;
         }
         lines++;
-        long millis = 0;
-        if (input == Input.CSV) {
-          if (header == null) {
-            header = Csv.header(line);
-            continue;
-          }
-          line = Csv.toJson(header, line);
-        } else if (input == Input.NORMALIZED) {
-          millis = wallTime(line);
-        }
+        long millis = input == Input.NORMALIZED ? wallTime(line) : 0;
         MetricsIntake.Reading reading = intake.accept(line, millis);
         if (reading == null || reading.sample() == null) {
           continue;
@@ -194,8 +190,52 @@ public final class Replay {
       departedAt = rewindStep;
       departure = "the replay rewound at step " + rewindStep + " but the recording ends there";
     }
-    return new Result(input, lines, engine.samples(), intake.ignoredLines(), fired, departedAt,
+    return new Result(input, lines, engine.samples(), intake.ignoredLines(),
+        intake.ambiguousValues(), fired, departedAt,
         departure, endedAt, unread, System.nanoTime() - start);
+  }
+
+  /** The lines of the recorded file: text lines, or the JSON lines of an event file's events. */
+  private interface LineSource extends AutoCloseable {
+    String next() throws IOException;
+
+    @Override
+    void close() throws IOException;
+  }
+
+  private static LineSource lines(Path file, Input input, ReadPlan plan) throws IOException {
+    if (input == Input.EVENTS) {
+      List<String> events = new ArrayList<>();
+      EventFileFollower.readAll(file, plan.stepKey(), events::add);
+      java.util.Iterator<String> it = events.iterator();
+      return new LineSource() {
+        @Override
+        public String next() {
+          return it.hasNext() ? it.next() : null;
+        }
+
+        @Override
+        public void close() {}
+      };
+    }
+    BufferedReader r = Files.newBufferedReader(file, StandardCharsets.UTF_8);
+    return new LineSource() {
+      @Override
+      public String next() throws IOException {
+        return r.readLine();
+      }
+
+      @Override
+      public void close() throws IOException {
+        r.close();
+      }
+    };
+  }
+
+  /** The guard file's plan read from the recorded file in {@code format}. */
+  private static ReadPlan withFormat(ReadPlan p, ReadPlan.Format format) {
+    return new ReadPlan(ReadPlan.Source.FILE, p.file() != null ? p.file() : Path.of("recorded"),
+        format, null, p.stepKey(), p.epochKey(), p.rateKey(), p.series());
   }
 
   private static String describe(Decision d) {
@@ -238,13 +278,18 @@ public final class Replay {
   }
 
   /**
-   * How to read {@code file}: normalized when its first line carries our {@code step}, {@code t}
-   * and {@code lr} keys; CSV by extension or when the first line is a bare comma-separated list
-   * of names; otherwise raw, through the guard file's read plan.
+   * How to read {@code file}: an event file by its name or its first record's header; normalized
+   * when its first line carries our {@code step}, {@code t} and {@code lr} keys; CSV by extension
+   * or when the first line is a bare list of names (perhaps quoted) separated by commas,
+   * semicolons or tabs;
+   * otherwise raw, through the guard file's read plan.
    */
   public static Input detect(Path file) throws IOException {
     String name = file.getFileName().toString().toLowerCase(Locale.ROOT);
-    if (name.endsWith(".csv")) {
+    if (name.startsWith(EventFileFollower.PREFIX) || EventFileFollower.looksLikeEvents(file)) {
+      return Input.EVENTS;
+    }
+    if (name.endsWith(".csv") || name.endsWith(".tsv")) {
       return Input.CSV;
     }
     String first = null;
@@ -265,7 +310,11 @@ public final class Replay {
     if (first.startsWith("{\"step\":") && first.contains("\"t\":") && first.contains("\"lr\":")) {
       return Input.NORMALIZED;
     }
-    if (first.contains(",") && first.matches("[A-Za-z_][A-Za-z0-9_ ./-]*(,[A-Za-z_][A-Za-z0-9_ ./-]*)+")) {
+    if (first.startsWith("\uFEFF")) {
+      first = first.substring(1);
+    }
+    String column = "\"?[A-Za-z_][A-Za-z0-9_ ./-]*\"?";
+    if (first.matches(column + "([,;\\t]" + column + ")+")) {
       return Input.CSV;
     }
     return Input.RAW;

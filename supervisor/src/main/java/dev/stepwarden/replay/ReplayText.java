@@ -62,6 +62,11 @@ public final class ReplayText {
     b.append(String.format(Locale.ROOT, "%d lines, %d samples, %d ignored lines; %d decisions;"
         + " %.0f samples/s%n", r.lines(), r.samples(), r.ignoredLines(), r.fired().size(),
         r.samplesPerSecond()));
+    if (r.ambiguousValues() > 0) {
+      b.append(r.ambiguousValues()).append(" values were passed over because they read two ways"
+          + " (such as 1,234.5: a thousands separator or a list?); print numbers without"
+          + " separators.\n");
+    }
     return b.toString();
   }
 
@@ -91,6 +96,7 @@ public final class ReplayText {
       case NORMALIZED -> "a run directory's normalized metrics";
       case RAW -> "a trainer log, read through the guard file's read plan";
       case CSV -> "CSV with a header row";
+      case EVENTS -> "an event file (TFRecord), its scalar tags as keys";
     };
   }
 
@@ -103,6 +109,7 @@ public final class ReplayText {
     m.put("lines", r.lines());
     m.put("samples", r.samples());
     m.put("ignored_lines", r.ignoredLines());
+    m.put("ambiguous_values", r.ambiguousValues());
     m.put("departed_at_step", r.departedAtStep() < 0 ? null : r.departedAtStep());
     m.put("departure", r.departure().isEmpty() ? null : r.departure());
     m.put("ended_at_step", r.endedAtStep() < 0 ? null : r.endedAtStep());

@@ -40,15 +40,22 @@ final class Catalogue {
       Key.duration("stop_grace", "30s", "How long the trainer may take to exit after TERM"
           + " before it is killed."));
 
+  /** The values of read.format, each a {@code ReadPlan.Format} with - for _. */
+  static final List<String> FORMATS = List.of("json", "pairs", "pattern", "csv", "python-dict",
+      "tfrecord");
+
   static final List<Key> READ = List.of(
       Key.choice("from", "stdout", List.of("stdout", "stderr"),
           "Which output stream of the trainer carries the metrics (ignored when 'file' is set)."),
       Key.text("file", null, "Follow this file instead of an output stream (relative to workdir);"
           + " rotation, truncation, late creation and deletion are survived."),
-      Key.choice("format", "json", List.of("json", "pairs", "pattern", "csv"),
+      Key.choice("format", "json", FORMATS,
           "json: one JSON object a line (nested keys as a.b); pairs: key=value or key: value"
               + " words; pattern: your regular expression with named groups; csv: a header line"
-              + " naming the columns, then rows."),
+              + " naming the columns, then rows (comma, semicolon or tab, found from the header);"
+              + " python-dict: a Python dict literal a line, {'loss': 0.69, 'epoch': 0.01};"
+              + " tfrecord: an event file (events.out.tfevents.*) of a summary writer, its scalar"
+              + " tags as keys, with 'file' naming the file or the folder holding it."),
       Key.text("pattern", null, "The regular expression for format: pattern, with a named group"
           + " per key, the trainer's key as its name, in Python's or Java's syntax, e.g."
           + " (?P<step>\\d+).*val_loss (?P<val_loss>\\S+)."),
@@ -68,7 +75,7 @@ final class Catalogue {
       Key.choice("from", "stdout", List.of("stdout", "stderr"),
           "Which output stream carries this source's metrics (ignored when 'file' is set)."),
       Key.text("file", null, "Follow this file (relative to workdir)."),
-      Key.choice("format", "json", List.of("json", "pairs", "pattern", "csv"),
+      Key.choice("format", "json", FORMATS,
           "How this source's lines are written (as read.format)."),
       Key.text("pattern", null, "The regular expression for format: pattern."),
       Key.text("step", "step", "This source's key for the step; lines without it take the latest"

@@ -144,8 +144,13 @@ public final class GuardFiles {
     String fileName = (String) v.get("file");
     ReadPlan.Source source = fileName != null ? ReadPlan.Source.FILE
         : ReadPlan.Source.valueOf(((String) v.get("from")).toUpperCase(Locale.ROOT));
-    ReadPlan.Format format =
-        ReadPlan.Format.valueOf(((String) v.get("format")).toUpperCase(Locale.ROOT));
+    ReadPlan.Format format = ReadPlan.Format.valueOf(
+        ((String) v.get("format")).replace('-', '_').toUpperCase(Locale.ROOT));
+    if (format == ReadPlan.Format.TFRECORD && fileName == null) {
+      throw fail(node.entries.getOrDefault("format", node), "format: tfrecord reads an event"
+          + " file: add 'file' with the file or the folder the summary writer writes to in "
+          + where);
+    }
     Pattern pattern = null;
     String patternText = (String) v.get("pattern");
     if (format == ReadPlan.Format.PATTERN) {

@@ -171,18 +171,113 @@ class ReplayTest {
     assertThat(Replay.detect(n)).isEqualTo(Replay.Input.NORMALIZED);
     assertThat(Replay.detect(c)).isEqualTo(Replay.Input.CSV);
     assertThat(Replay.detect(raw)).isEqualTo(Replay.Input.RAW);
+    Path semi = tmp.resolve("semi.txt");
+    Files.writeString(semi, "step;loss;val_loss\n1;0.5;\n");
+    assertThat(Replay.detect(semi)).isEqualTo(Replay.Input.CSV);
     assertThat(Replay.wallTime("{\"step\":1,\"t\":1796163932920,\"lr\":3.0"))
         .isEqualTo(1796163932920L);
   }
 
   @Test
-  void csvCellsBecomeJsonWithQuotesNumbersAndEmptyCellsHandled() {
-    String[] h = Csv.header("\uFEFFstep, loss ,note");
-    assertThat(h).containsExactly("step", "loss", "note");
-    assertThat(Csv.toJson(h, "3,0.25,\"a, \"\"b\"\"\"")).isEqualTo(
-        "{\"step\":3,\"loss\":0.25,\"note\":\"a, \\\"b\\\"\"}");
-    assertThat(Csv.toJson(h, "4,,x")).isEqualTo("{\"step\":4,\"note\":\"x\"}");
-    assertThat(Csv.toJson(h, "5,nan,")).isEqualTo("{\"step\":5,\"loss\":\"nan\"}");
+  void aSemicolonCsvGivesTheSameSamplesInReplayAsInARunsIntake() throws Exception {
+    // Our own scenario, written as a spreadsheet in a decimal-comma locale exports it: a byte
+    // order mark, semicolons, quoted names, one loss of "1,5" (1.5 or 15?) that must be passed
+    // over, not read as 1.
+    StringBuilder csv = new StringBuilder("\uFEFF\"step\";\"loss\";\"val_loss\"\n");
+    for (int s = 1; s <= 30; s++) {
+      String loss = s == 12 ? "1,5" : String.valueOf(1.0 / s);
+      csv.append(s).append(';').append(loss).append(';').append(s % 10 == 0 ? "0.5" : "")
+          .append('\n');
+    }
+    Path file = tmp.resolve("export.txt");
+    Files.writeString(file, csv);
+    Path rules = tmp.resolve("g.yaml");
+    Files.writeString(rules, """
+        run: { name: csv-night, learning_rate: 0.1 }
+        read: { file: export.txt, format: csv, series: { train: loss, validation: val_loss } }
+        guards:
+          - name: flat-validation
+            when: { flattens: { series: validation, over: 3, gain_below: 1% } }
+            do: { scale: 0.5 }
+        limits: { learning_rate: { min: 0.001, max: 1.0 } }
+        """);
+    GuardFile g = GuardFiles.load(rules);
+    dev.stepwarden.metrics.MetricsIntake live = new dev.stepwarden.metrics.MetricsIntake(g.read());
+    long liveSamples = Files.readAllLines(file).stream()
+        .map(l -> live.accept(l, 0)).filter(x -> x != null && x.sample() != null).count();
+    assertThat(Replay.detect(file)).isEqualTo(Replay.Input.CSV);
+    Replay.Result r = Replay.run(g, file);
+    assertThat(r.samples()).isEqualTo(liveSamples).isEqualTo(29); // row 12 has no value left
+    assertThat(r.ambiguousValues()).isEqualTo(1);
+    assertThat(live.ambiguousValues()).isEqualTo(1);
+    assertThat(ReplayText.text(r, "export.txt", "g.yaml", 1)).contains("read two ways");
+  }
+
+  @Test
+  void aPairsLogWithAThousandsSeparatorIsNotReadAsTheFirstGroup() throws Exception {
+    Path file = tmp.resolve("train.log");
+    Files.writeString(file, "step=1 loss=1,234.5 lr=0.1\nstep=2 loss=0.9, lr=0.1\n");
+    Path rules = tmp.resolve("g.yaml");
+    Files.writeString(rules, """
+        run: { name: pairs, learning_rate: 0.1 }
+        read: { from: stdout, format: pairs, series: { train: loss } }
+        guards:
+          - name: blow-up
+            when: { rises: { series: train, above_best: 3x, samples: 2 } }
+            do: { scale: 0.5 }
+        """);
+    Replay.Result r = Replay.run(GuardFiles.load(rules), file);
+    // line 1: loss is ambiguous and passed over (no sample); line 2: "0.9," is 0.9
+    assertThat(r.samples()).isEqualTo(1);
+    assertThat(r.ambiguousValues()).isEqualTo(1);
+  }
+
+  @Test
+  void pythonDictLinesAreReadByReadFormatPythonDict() throws Exception {
+    Path log = Path.of("src/test/resources/python-dict/trainer.log");
+    Path rules = tmp.resolve("g.yaml");
+    Files.writeString(rules, """
+        run: { name: dict-lines, learning_rate: 5.0e-5 }
+        read: { from: stdout, format: python-dict, rate: learning_rate,
+                series: { train: loss, validation: eval_loss } }
+        guards:
+          - name: broken
+            when: { breaks: { series: train } }
+            do: { scale: 0.5 }
+        limits: { learning_rate: { min: 1.0e-7, max: 1.0 } }
+        """);
+    Replay.Result r = Replay.run(GuardFiles.load(rules), log);
+    assertThat(r.input()).isEqualTo(Replay.Input.RAW);
+    // 240 training lines and 24 evaluation lines, every one a sample
+    assertThat(r.samples()).isEqualTo(264);
+    // the one nan loss (step 77) is read as non-finite, so the guard sees it
+    assertThat(r.first().orElseThrow().decision().step()).isEqualTo(77);
+    System.out.printf(Locale.ROOT, "python-dict replay: %d samples%n", r.samples());
+  }
+
+  @Test
+  void anEventFileIsReadByReadFormatTfrecordAndDetectedByItsName() throws Exception {
+    Path events = Path.of("src/test/resources/events/events.out.tfevents.1790000000.reference");
+    Path rules = tmp.resolve("g.yaml");
+    Files.writeString(rules, """
+        run: { name: events, learning_rate: 0.1 }
+        read: { file: logs, format: tfrecord, series: { train: loss, validation: val_loss } }
+        guards:
+          - name: flat-validation
+            when: { flattens: { series: validation, over: 5, gain_below: 0.5% } }
+            do: { scale: 0.5 }
+        limits: { learning_rate: { min: 0.001, max: 1.0 } }
+        """);
+    GuardFile g = GuardFiles.load(rules);
+    assertThat(Replay.detect(events)).isEqualTo(Replay.Input.EVENTS);
+    Replay.Result r = Replay.run(g, events);
+    // 250 loss events and 50 validation events (which also carry lr and non-scalars)
+    assertThat(r.samples()).isEqualTo(300);
+    assertThat(r.lines()).isEqualTo(300);
+    // the same through --input raw: the guard file says the file is an event file
+    assertThat(Replay.run(g, events, Replay.Input.RAW).samples()).isEqualTo(300);
+    System.out.printf(Locale.ROOT, "event-file replay: %d samples, %d decisions%n",
+        r.samples(), r.fired().size());
   }
 
   @Test
