@@ -1,5 +1,6 @@
 package dev.stepwarden.supervise;
 
+import dev.stepwarden.rundir.RunLock;
 import java.io.IOException;
 import java.nio.file.FileAlreadyExistsException;
 import java.nio.file.Files;
@@ -11,6 +12,9 @@ import java.time.format.DateTimeFormatter;
 
 /**
  * The layout of a run directory: everything the next morning needs, in one place.
+ *
+ * <p>A supervisor holds the directory's {@link RunLock} for the run's life: a second {@code run}
+ * or {@code run --resume} of the same directory is refused at once, naming the live process.
  *
  * <p>Files are created owner-only (0600) and folders 0700 where the file system supports POSIX
  * permissions: logs and commands may hold secrets from the trainer's environment.
@@ -27,9 +31,11 @@ public final class RunDirectory {
   public static final String VAULT = "vault";
 
   private final Path root;
+  private final RunLock lock;
 
-  private RunDirectory(Path root) {
+  private RunDirectory(Path root, RunLock lock) {
     this.root = root;
+    this.lock = lock;
   }
 
   /** Creates {@code dir} (or a fresh timestamped folder under ./runs when null). */
@@ -41,18 +47,42 @@ public final class RunDirectory {
       root = Path.of("runs", runName.replaceAll("[^A-Za-z0-9._-]", "_") + "-" + stamp);
     }
     root = root.toAbsolutePath().normalize();
-    if (Files.exists(root.resolve(AUDIT))) {
-      throw new FileAlreadyExistsException(root.toString(), null, "this run directory already"
-          + " holds a run; choose another --run-dir, or continue it with run --resume");
-    }
     createPrivateDirectories(root);
-    createPrivateDirectories(root.resolve(VAULT));
-    return new RunDirectory(root);
+    // The lock first: a live supervisor is named, not mistaken for a finished run.
+    RunLock lock = RunLock.acquire(root);
+    try {
+      if (Files.exists(root.resolve(AUDIT))) {
+        throw new FileAlreadyExistsException(root.toString(), null, "this run directory already"
+            + " holds a run; choose another --run-dir, or continue it with run --resume");
+      }
+      createPrivateDirectories(root.resolve(VAULT));
+    } catch (IOException | RuntimeException e) {
+      lock.close();
+      throw e;
+    }
+    return new RunDirectory(root, lock);
   }
 
-  /** Opens an existing run directory (resume, report). */
+  /** Opens an existing run directory to read it (report), without taking its lock. */
   public static RunDirectory existing(Path dir) {
-    return new RunDirectory(dir.toAbsolutePath().normalize());
+    return new RunDirectory(dir.toAbsolutePath().normalize(), null);
+  }
+
+  /**
+   * Opens an existing run directory to continue its run, holding its lock.
+   *
+   * @throws dev.stepwarden.rundir.RunBusyException when a live supervisor holds the run
+   */
+  public static RunDirectory resumed(Path dir) throws IOException {
+    Path root = dir.toAbsolutePath().normalize();
+    return new RunDirectory(root, RunLock.acquire(root));
+  }
+
+  /** Releases the run's lock, if this supervisor holds it. */
+  public void release() throws IOException {
+    if (lock != null) {
+      lock.close();
+    }
   }
 
   public Path root() {

@@ -3,6 +3,8 @@ package dev.stepwarden.supervise;
 import dev.stepwarden.audit.AuditLog;
 import dev.stepwarden.checkpoints.CheckpointLedger;
 import dev.stepwarden.checkpoints.CheckpointVault;
+import dev.stepwarden.rundir.RunBusyException;
+import dev.stepwarden.rundir.RunLock;
 import dev.stepwarden.control.ControlFile;
 import dev.stepwarden.metrics.MetricsIntake;
 import dev.stepwarden.metrics.MetricsSources;
@@ -264,6 +266,10 @@ public final class Supervisor {
   public static Supervisor resume(Path runDir, GuardFile rules, Options options,
       Map<String, String> env) throws IOException {
     Path root = runDir.toAbsolutePath().normalize();
+    Optional<String> live = RunLock.liveHolder(root);
+    if (live.isPresent()) { // refused at once, before the state file is even read
+      throw new RunBusyException(root, live.get());
+    }
     JsonNode state = StateFile.read(root.resolve(RunDirectory.STATE));
     // An interrupted run was stopped from outside, not finished: it may go on (a serve that
     // was stopped resumes its jobs so). Every other ending is final.
@@ -291,13 +297,19 @@ public final class Supervisor {
 
   /** Runs the night; returns when the trainer finished, a guard ended it, or it was stopped. */
   public Result run() throws IOException, InterruptedException {
-    if (resumed == null) {
-      prepare();
-      if (rules.probe().isPresent()) {
-        probe(rules.probe().get());
+    try {
+      if (resumed == null) {
+        prepare();
+        if (rules.probe().isPresent()) {
+          probe(rules.probe().get());
+        }
+      } else {
+        prepareResume();
       }
-    } else {
-      prepareResume();
+    } catch (IOException | InterruptedException | RuntimeException e) {
+      finished = true;
+      closeQuietly(); // releases the run's lock: a serve's JVM lives on
+      throw e;
     }
     try {
       if (interrupted) {
@@ -529,7 +541,7 @@ public final class Supervisor {
 
   private void prepareResume() throws IOException {
     JsonNode st = resumed;
-    dir = RunDirectory.existing(options.runDir());
+    dir = RunDirectory.resumed(options.runDir());
     workdir = rules.run().workdir() == null ? Path.of("").toAbsolutePath()
         : rules.run().workdir().toAbsolutePath();
     long tornBytes = cutTornAuditTail(dir.file(RunDirectory.AUDIT));
@@ -1442,6 +1454,13 @@ public final class Supervisor {
         if (audit != null) {
           audit.close();
         }
+      }
+    } catch (IOException e) {
+      options.console().println("stepwarden: " + e.getMessage());
+    }
+    try {
+      if (dir != null) {
+        dir.release(); // last: the run's files are complete before another supervisor may come
       }
     } catch (IOException e) {
       options.console().println("stepwarden: " + e.getMessage());
