@@ -107,6 +107,8 @@ public final class MetricsIntake {
   private long oversized;
   private long inferredStep;
   private long lastStep = -1;
+  private double lastEpoch = Double.NaN;
+  private int epochChanges;
   /** The names array of the last sample, shared by the next one of the same shape. */
   private String[] lastNames;
   private long lastShape;
@@ -368,6 +370,12 @@ public final class MetricsIntake {
         step = ++inferredStep;
       }
       lastStep = step;
+      if (has(EPOCH) && Double.isFinite(values[EPOCH]) && values[EPOCH] != lastEpoch) {
+        if (!Double.isNaN(lastEpoch)) {
+          epochChanges++;
+        }
+        lastEpoch = values[EPOCH];
+      }
       sample = new Sample(step, has(EPOCH) ? values[EPOCH] : Double.NaN, wallMillis, sv);
     } else {
       ignored++;
@@ -412,6 +420,33 @@ public final class MetricsIntake {
 
   public long lastStep() {
     return lastStep;
+  }
+
+  /** How often the epoch of this source's metric lines changed (0 without an epoch key). */
+  public int epochChanges() {
+    return epochChanges;
+  }
+
+  /** Whether some configured key has not appeared yet (no allocation: asked after each line). */
+  public boolean missesKeys() {
+    for (int i = FIRST_SERIES; i < stamp.length && i < FIRST_SERIES + seriesNames.length; i++) {
+      if (stamp[i] == 0) {
+        return true;
+      }
+    }
+    return false;
+  }
+
+  /** The configured keys (series name to key) that have not appeared in any line so far. */
+  public Map<String, String> missingKeys() {
+    Map<String, String> out = new java.util.LinkedHashMap<>();
+    int i = FIRST_SERIES;
+    for (Map.Entry<String, String> e : plan.series().entrySet()) {
+      if (stamp[i++] == 0) {
+        out.put(e.getKey(), e.getValue());
+      }
+    }
+    return out;
   }
 
   /** Configured series whose key has not appeared in any line so far. */

@@ -5,6 +5,7 @@ import java.nio.file.Path;
 import java.time.Duration;
 import java.util.ArrayList;
 import java.util.List;
+import java.util.Map;
 import java.util.Objects;
 import java.util.Optional;
 
@@ -152,40 +153,57 @@ public final class MetricsSources implements AutoCloseable {
   }
 
   /**
-   * The "configured key never appeared" warning, at most once per run: empty until
-   * {@code afterLines} lines were read in all, then the message if some series' key has still
-   * not appeared (naming the source, the keys it did see and, for a file, whether it exists);
-   * empty for ever after.
+   * The "configured key never appeared" warning, at most once per run. Early for a source that
+   * prints epochs: once its epoch changed {@code EPOCHS_BEFORE_WARNING} times while other keys
+   * arrived, a per-epoch validation key should have shown; else after {@code afterLines} lines in
+   * all. It names the source, the missing key, the keys the source did print and the nearest of
+   * them; empty before that moment and for ever after.
    */
   public Optional<String> missingKeysWarning(long afterLines) {
-    if (warned || lines() < afterLines) {
+    if (warned) {
+      return Optional.empty();
+    }
+    boolean early = false;
+    for (int i = 0; i < intakes.size(); i++) {
+      MetricsIntake in = intakes.get(i);
+      early |= in.epochChanges() >= EPOCHS_BEFORE_WARNING && in.missesKeys();
+    }
+    if (!early && lines() < afterLines) {
       return Optional.empty();
     }
     warned = true;
     List<String> parts = new ArrayList<>();
     for (int i = 0; i < intakes.size(); i++) {
       MetricsIntake in = intakes.get(i);
-      List<String> missing = in.missingSeries();
+      Map<String, String> missing = in.missingKeys();
       if (missing.isEmpty()) {
         continue;
       }
       StringBuilder b = new StringBuilder();
-      b.append("no line of ").append(describe(i)).append(" had ")
-          .append(String.join(", ", missing)).append(" after ").append(lines())
-          .append(" lines");
+      List<String> seen = in.keysSeen();
+      for (Map.Entry<String, String> m : missing.entrySet()) {
+        b.append(b.length() == 0 ? "" : "; ").append("series ").append(m.getKey()).append(": ")
+            .append(describe(i)).append(" never printed key '").append(m.getValue()).append("'");
+        Nearest.of(m.getValue(), seen).ifPresent(n -> b.append(" (did you mean '").append(n)
+            .append("'?)"));
+      }
+      b.append(in.epochChanges() > 0 ? " in " + (in.epochChanges() + 1) + " epochs" : "")
+          .append(" (").append(in.lines()).append(" lines read)");
       if (resolved[i] != null && !Files.exists(resolved[i])) {
-        b.append(" (the file does not exist)");
+        b.append("; the file does not exist");
       } else if (in.lines() == 0) {
-        b.append(" (it gave no line at all)");
+        b.append("; it gave no line at all");
       } else {
-        List<String> seen = in.keysSeen();
-        b.append("; keys seen: ").append(seen.isEmpty() ? "none" : String.join(", ", seen));
+        b.append("; keys it printed: ").append(seen.isEmpty() ? "none" : String.join(", ", seen));
       }
       parts.add(b.toString());
     }
     return parts.isEmpty() ? Optional.empty() : Optional.of(String.join("; ", parts)
-        + "; check read.series in the guard file");
+        + "; fix read.series in the guard file (or what the trainer prints)");
   }
+
+  /** Epoch changes of a source after which a key still missing is warned about. */
+  static final int EPOCHS_BEFORE_WARNING = 2;
 
   private String describe(int i) {
     ReadPlan p = sources.get(i);

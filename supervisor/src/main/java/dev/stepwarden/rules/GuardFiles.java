@@ -1,6 +1,7 @@
 package dev.stepwarden.rules;
 
 import dev.stepwarden.metrics.MetricPatterns;
+import dev.stepwarden.metrics.Nearest;
 import dev.stepwarden.metrics.ReadPlan;
 import dev.stepwarden.rules.ConfigNode.ListNode;
 import dev.stepwarden.rules.ConfigNode.MapNode;
@@ -662,50 +663,12 @@ public final class GuardFiles {
         problem);
   }
 
-  /** "; did you mean 'x'?" when a known word is within a small edit distance. */
+  /** "; did you mean 'x'?" when a known word is near ({@link Nearest}); never the word itself. */
   static String suggestion(String given, Collection<String> known) {
-    String best = null;
-    int bestDistance = Integer.MAX_VALUE;
-    for (String k : known) {
-      int d = editDistance(given.toLowerCase(Locale.ROOT), k.toLowerCase(Locale.ROOT));
-      if (d < bestDistance) {
-        bestDistance = d;
-        best = k;
-      }
-    }
-    int allowed = Math.max(1, Math.min(3, given.length() / 3));
-    if (best != null && bestDistance <= allowed) {
-      return "; did you mean '" + best + "'?";
-    }
-    // A truncated word ("valid" for "validation") is far in edits but an obvious intent.
-    String g = given.toLowerCase(Locale.ROOT);
-    for (String k : known) {
-      if (g.length() >= 3 && k.toLowerCase(Locale.ROOT).startsWith(g)) {
-        return "; did you mean '" + k + "'?";
-      }
-    }
-    return "";
+    return Nearest.of(given, known).map(k -> "; did you mean '" + k + "'?").orElse("");
   }
 
-  /** Levenshtein distance, with an adjacent swap counted as one edit (typos). */
   static int editDistance(String a, String b) {
-    int[][] d = new int[a.length() + 1][b.length() + 1];
-    for (int i = 0; i <= a.length(); i++) {
-      d[i][0] = i;
-    }
-    for (int j = 0; j <= b.length(); j++) {
-      d[0][j] = j;
-    }
-    for (int i = 1; i <= a.length(); i++) {
-      for (int j = 1; j <= b.length(); j++) {
-        int cost = a.charAt(i - 1) == b.charAt(j - 1) ? 0 : 1;
-        d[i][j] = Math.min(Math.min(d[i - 1][j] + 1, d[i][j - 1] + 1), d[i - 1][j - 1] + cost);
-        if (i > 1 && j > 1 && a.charAt(i - 1) == b.charAt(j - 2)
-            && a.charAt(i - 2) == b.charAt(j - 1)) {
-          d[i][j] = Math.min(d[i][j], d[i - 2][j - 2] + 1);
-        }
-      }
-    }
-    return d[a.length()][b.length()];
+    return Nearest.distance(a, b);
   }
 }

@@ -933,14 +933,15 @@ public final class Supervisor {
   }
 
   private void warnMissingKeys() throws IOException {
-    if (missingWarned || intake.lines() < MISSING_KEY_WARNING_AFTER) {
+    if (missingWarned) {
       return;
     }
+    // the sources decide when: after two epochs of a source that prints epochs, else 1,000 lines
     Optional<String> msg = intake.missingKeysWarning(MISSING_KEY_WARNING_AFTER);
-    missingWarned = true; // decided once: the sources give their warning at most once
     if (msg.isEmpty()) {
       return;
     }
+    missingWarned = true; // the sources give their warning at most once
     Map<String, Object> f = new LinkedHashMap<>();
     f.put("after_lines", intake.lines());
     f.put("message", msg.get());

@@ -81,10 +81,32 @@ class MetricsSourcesTest {
     }
     assertThat(s.missingKeysWarning(1000)).isEmpty();
     s.accept(0, "{\"step\": 1000, \"loss\": 0.5}", 0, false);
-    assertThat(s.missingKeysWarning(1000)).hasValue("no line of stdout had validation (key"
-        + " 'val_loss') after 1000 lines; keys seen: acc, loss, step; check read.series in the"
-        + " guard file");
+    assertThat(s.missingKeysWarning(1000)).hasValue("series validation: stdout never printed"
+        + " key 'val_loss' (1000 lines read); keys it printed: acc, loss, step; fix read.series"
+        + " in the guard file (or what the trainer prints)");
     assertThat(s.missingKeysWarning(1000)).isEmpty();
+  }
+
+  @Test
+  void warnsAfterTwoEpochsOfASourceThatPrintsThemWithTheNearestKey() {
+    ReadPlan plan = new ReadPlan(ReadPlan.Source.STDOUT, null, ReadPlan.Format.JSON, null,
+        "step", "epoch", "lr", Map.of("train", "loss", "validation", "valid_loss"));
+    MetricsSources s = new MetricsSources(plan);
+    int step = 0;
+    for (int epoch = 1; epoch <= 2; epoch++) {
+      for (int i = 0; i < 5; i++) {
+        s.accept(0, "{\"epoch\": " + epoch + ", \"step\": " + ++step + ", \"loss\": 0.5}", 0,
+            false);
+      }
+      s.accept(0, "{\"epoch\": " + epoch + ", \"step\": " + step + ", \"val_loss\": 0.6}", 0,
+          false);
+      assertThat(s.missingKeysWarning(1000)).as("epoch %d", epoch).isEmpty();
+    }
+    s.accept(0, "{\"epoch\": 3, \"step\": " + ++step + ", \"loss\": 0.5}", 0, false);
+    assertThat(s.missingKeysWarning(1000)).hasValue("series validation: stdout never printed"
+        + " key 'valid_loss' (did you mean 'val_loss'?) in 3 epochs (13 lines read); keys it"
+        + " printed: epoch, loss, step, val_loss; fix read.series in the guard file (or what the"
+        + " trainer prints)");
   }
 
   @Test
@@ -94,7 +116,7 @@ class MetricsSourcesTest {
     try {
       s.accept(0, "{\"step\": 1, \"loss\": 0.5}", 0, false);
       assertThat(s.missingKeysWarning(1).orElseThrow()).contains("val.csv")
-          .contains("(the file does not exist)");
+          .contains("the file does not exist");
     } finally {
       s.close();
     }
