@@ -54,7 +54,7 @@ run: { name: flood, learning_rate: 0.001 }
 read: { from: stdout, series: { train: loss } }
 guards:
   - name: blow-up
-    when: { rises: { series: train, above_best: 3.0, samples: 3 } }
+    when: { rises: { series: train, above_level: 3.0, samples: 3 } }
     do: { scale: 0.5 }
 YAML
 # Side by side, three interleaved rounds, medians: the pipe's line rate and the whole supervisor.

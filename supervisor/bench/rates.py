@@ -120,7 +120,7 @@ guards:
     when: {{ breaks: {{ series: train }} }}
     do: {action}
   - name: blow-up
-    when: {{ rises: {{ series: train, above_best: 3.0, samples: 3 }} }}
+    when: {{ rises: {{ series: train, above_level: 3.0, samples: 3 }} }}
     do: {{ scale: 0.5 }}
 limits:
   learning_rate: {{ min: 0, max: 10 }}

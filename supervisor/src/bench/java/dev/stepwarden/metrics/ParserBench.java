@@ -89,7 +89,7 @@ public class ParserBench {
         "read: { from: stdout, step: step, series: { train: loss } }",
         "guards:",
         "  - name: blow-up",
-        "    when: { rises: { series: train, above_best: 3.0, samples: 3 } }",
+        "    when: { rises: { series: train, above_level: 3.0, samples: 3 } }",
         "    do: { scale: 0.5 }",
         "  - name: nan",
         "    when: { breaks: { series: train } }",

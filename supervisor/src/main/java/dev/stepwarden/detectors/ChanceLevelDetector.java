@@ -45,9 +45,7 @@ final class ChanceLevelDetector implements Detector {
    */
   ChanceLevelDetector(String series, int classes, double tolerance, long byStep, double beta) {
     this.series = Figures.series(series);
-    if (classes < 2) {
-      throw new IllegalArgumentException("chance-level classes must be >= 2, got " + classes);
-    }
+    DetectorKind.STUCK_AT_CHANCE.param("classes").requireInt(classes);
     double lnC = Math.log(classes);
     if (!(tolerance > 0 && tolerance < lnC)) {
       throw new IllegalArgumentException(

@@ -12,6 +12,23 @@ public interface Detector {
   /** Feeds the next point of the watched series; returns evidence when the condition holds. */
   Optional<Evidence> offer(long step, double value);
 
-  /** Forgets the history: after a rate change or a rewind the series starts a new regime. */
+  /** Forgets the history: a new generation from scratch, or the series starts a new regime. */
   void reset();
+
+  /**
+   * A new generation resumes a checkpoint of {@code step}: a detector whose judgement rests on
+   * a reference level restores the reference it had then; by default it forgets its window.
+   */
+  default void rewindTo(long step) {
+    reset();
+  }
+
+  /**
+   * The rate changed within the launch (or a rewind was decided): the series starts a new regime,
+   * so a detector of trends forgets its window (the default); a detector that judges against the
+   * launch's own level keeps that level, since judging against a single new batch would be noise.
+   */
+  default void rateChanged() {
+    reset();
+  }
 }

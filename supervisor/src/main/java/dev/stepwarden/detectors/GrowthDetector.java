@@ -25,35 +25,34 @@ import java.util.Optional;
  * {@code last}.
  */
 final class GrowthDetector implements Detector {
-  static final String NAME = "climbs";
-
   static final int DEFAULT_WINDOW = 30;
   static final double DEFAULT_ALPHA = 1e-4;
 
   private final String series;
   private final double alpha;
+  private final double riseAbove;
+  private final StartLevel startLevel = new StartLevel();
   private final SampleWindow window;
   private final double[] values;
   private final double[] scratch;
   private final double[] pairScratch;
 
   GrowthDetector(int window, double alpha) {
-    this("series", window, alpha);
+    this("series", window, alpha, 0);
   }
 
   /**
-   * @param window number of points judged, 3..200
-   * @param alpha one-sided significance level in (0, 1)
+   * @param window number of points judged (range: {@link DetectorKind#CLIMBS})
+   * @param alpha one-sided significance level
+   * @param riseAbove the least net rise over the window that counts, as a fraction of the level
+   *     the generation started at (0: any significant rise)
    */
-  GrowthDetector(String series, int window, double alpha) {
+  GrowthDetector(String series, int window, double alpha, double riseAbove) {
     this.series = Figures.series(series);
-    if (window < 3 || window > 200) {
-      throw new IllegalArgumentException("growth window must be in 3..200, got " + window);
-    }
-    if (!(alpha > 0 && alpha < 1)) {
-      throw new IllegalArgumentException("growth alpha must be in (0, 1), got " + alpha);
-    }
-    this.alpha = alpha;
+    DetectorKind k = DetectorKind.CLIMBS;
+    k.param("over").requireInt(window);
+    this.alpha = k.param("p_below").require(alpha);
+    this.riseAbove = k.param("rise_above").require(riseAbove);
     this.window = new SampleWindow(window);
     this.values = new double[window];
     this.scratch = new double[window];
@@ -65,6 +64,7 @@ final class GrowthDetector implements Detector {
     if (!Double.isFinite(value)) {
       return Optional.empty();
     }
+    startLevel.offer(value);
     window.add(step, value);
     if (!window.isFull()) {
       return Optional.empty();
@@ -75,6 +75,11 @@ final class GrowthDetector implements Detector {
       return Optional.empty();
     }
     double slope = SensSlope.slope(values, n, pairScratch);
+    double start = startLevel.level();
+    double rise = slope * (n - 1);
+    if (riseAbove > 0 && !(rise >= riseAbove * start)) {
+      return Optional.empty(); // significant but small against where the generation started
+    }
     Map<String, Object> figures = new LinkedHashMap<>();
     figures.put("window", n);
     figures.put("s_statistic", mk.s());
@@ -86,6 +91,8 @@ final class GrowthDetector implements Detector {
     figures.put("last_step", window.step(n - 1));
     figures.put("first", values[0]);
     figures.put("last", values[n - 1]);
+    figures.put("net_rise", rise);
+    figures.put("start_level", start);
     String summary =
         series
             + " has risen steadily over the last "
@@ -106,12 +113,26 @@ final class GrowthDetector implements Detector {
             + Figures.num(alpha)
             + ", Sen slope "
             + Figures.num(slope)
-            + " per point.";
-    return Optional.of(new Evidence(NAME, summary, figures));
+            + " per point, a rise of "
+            + Figures.num(rise)
+            + (Double.isNaN(start) ? "" : " against a start level of " + Figures.num(start))
+            + ".";
+    return Optional.of(new Evidence(DetectorKind.CLIMBS.key(), summary, figures));
   }
 
   @Override
   public void reset() {
+    window.clear();
+    startLevel.reset();
+  }
+
+  @Override
+  public void rewindTo(long step) {
+    window.clear();
+  }
+
+  @Override
+  public void rateChanged() {
     window.clear();
   }
 }

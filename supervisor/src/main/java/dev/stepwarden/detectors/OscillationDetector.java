@@ -36,8 +36,6 @@ import java.util.Optional;
  * first_step}, {@code last_step}.
  */
 final class OscillationDetector implements Detector {
-  static final String NAME = "wobbles";
-
   static final int DEFAULT_WINDOW = 40;
   static final double DEFAULT_MAX_AUTOCORR = -0.75;
   static final double DEFAULT_MAX_REL_SLOPE = 0.02;
@@ -45,33 +43,32 @@ final class OscillationDetector implements Detector {
   private final String series;
   private final double maxAutocorr;
   private final double maxRelSlope;
+  private final double swingAbove;
+  private final StartLevel startLevel = new StartLevel();
   private final SampleWindow window;
   private final double[] values;
   private final double[] diffs;
   private final double[] pairScratch;
 
   OscillationDetector(int window, double maxAutocorr, double maxRelSlope) {
-    this("series", window, maxAutocorr, maxRelSlope);
+    this("series", window, maxAutocorr, maxRelSlope, 0);
   }
 
   /**
-   * @param window points judged, 8..200
-   * @param maxAutocorr upper limit on the lag-1 autocorrelation of the differences, in [-1, 0]
-   * @param maxRelSlope upper limit on the relative net change across the window, &gt;= 0
+   * @param window points judged (ranges: {@link DetectorKind#WOBBLES})
+   * @param maxAutocorr upper limit on the lag-1 autocorrelation of the differences
+   * @param maxRelSlope upper limit on the relative net change across the window
+   * @param swingAbove the least mean absolute change between successive points that counts, as
+   *     a fraction of the level the generation started at (0: any swing)
    */
-  OscillationDetector(String series, int window, double maxAutocorr, double maxRelSlope) {
+  OscillationDetector(String series, int window, double maxAutocorr, double maxRelSlope,
+      double swingAbove) {
     this.series = Figures.series(series);
-    if (window < 8 || window > 200) {
-      throw new IllegalArgumentException("oscillation window must be in 8..200, got " + window);
-    }
-    if (!(maxAutocorr >= -1 && maxAutocorr <= 0)) {
-      throw new IllegalArgumentException(
-          "oscillation maxAutocorr must be in [-1, 0], got " + maxAutocorr);
-    }
-    if (!(maxRelSlope >= 0) || !Double.isFinite(maxRelSlope)) {
-      throw new IllegalArgumentException(
-          "oscillation maxRelSlope must be finite and >= 0, got " + maxRelSlope);
-    }
+    DetectorKind k = DetectorKind.WOBBLES;
+    k.param("over").requireInt(window);
+    k.param("autocorr_below").require(maxAutocorr);
+    k.param("net_change_below").require(maxRelSlope);
+    this.swingAbove = k.param("swing_above").require(swingAbove);
     this.maxAutocorr = maxAutocorr;
     this.maxRelSlope = maxRelSlope;
     this.window = new SampleWindow(window);
@@ -85,19 +82,27 @@ final class OscillationDetector implements Detector {
     if (!Double.isFinite(value)) {
       return Optional.empty();
     }
+    startLevel.offer(value);
     window.add(step, value);
     if (!window.isFull()) {
       return Optional.empty();
     }
     int n = window.copyValues(values);
     double mean = 0;
+    double swing = 0;
     for (int i = 0; i < n; i++) {
       mean += values[i];
       if (i > 0) {
         diffs[i - 1] = values[i] - values[i - 1];
+        swing += Math.abs(diffs[i - 1]);
       }
     }
     mean /= n;
+    swing /= n - 1;
+    double start = startLevel.level();
+    if (swingAbove > 0 && !(swing >= swingAbove * start)) {
+      return Optional.empty(); // the swings are small against where the generation started
+    }
     double r = Autocorrelation.lag1(diffs, 0, n - 1);
     if (!(r <= maxAutocorr)) {
       return Optional.empty();
@@ -115,6 +120,8 @@ final class OscillationDetector implements Detector {
     figures.put("mean", mean);
     figures.put("relative_net_change", relative);
     figures.put("limit_relative_net_change", maxRelSlope);
+    figures.put("mean_swing", swing);
+    figures.put("start_level", start);
     figures.put("first_step", window.step(0));
     figures.put("last_step", window.step(n - 1));
     String summary =
@@ -135,12 +142,27 @@ final class OscillationDetector implements Detector {
             + Figures.num(mean)
             + " (limit "
             + Figures.percent(maxRelSlope)
-            + ").";
-    return Optional.of(new Evidence(NAME, summary, figures));
+            + "); the mean swing "
+            + Figures.num(swing)
+            + (Double.isNaN(start) ? "" : " is " + Figures.percent(swing / start)
+                + " of the start level " + Figures.num(start))
+            + ".";
+    return Optional.of(new Evidence(DetectorKind.WOBBLES.key(), summary, figures));
   }
 
   @Override
   public void reset() {
+    window.clear();
+    startLevel.reset();
+  }
+
+  @Override
+  public void rewindTo(long step) {
+    window.clear();
+  }
+
+  @Override
+  public void rateChanged() {
     window.clear();
   }
 }

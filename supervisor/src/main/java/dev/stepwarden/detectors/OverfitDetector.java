@@ -77,22 +77,29 @@ public final class OverfitDetector implements Detector {
     if (kind == null) {
       throw new IllegalArgumentException("overfit kind must be one of GL, PQ, UP, got null");
     }
-    if (!(threshold > 0) || !Double.isFinite(threshold)) {
-      throw new IllegalArgumentException(
-          "overfit threshold must be finite and > 0, got " + threshold);
-    }
+    DetectorKind.OVERFITS.param("above").require(threshold);
     if (kind == Kind.UP && (threshold != Math.rint(threshold) || threshold > 1000)) {
       throw new IllegalArgumentException(
           "overfit UP threshold is a whole number of strips (1..1000), got " + threshold);
     }
-    if (strip < 2 || strip > 1000) {
-      throw new IllegalArgumentException("overfit strip must be in 2..1000, got " + strip);
-    }
+    DetectorKind.OVERFITS.param("strip").requireInt(strip);
     this.kind = kind;
     this.threshold = threshold;
     this.strip = strip;
     this.trainStrip = new SampleWindow(strip);
     this.stripValues = new double[strip];
+  }
+
+  /** The threshold a guard file asks for, or the criterion's default when it gives none. */
+  static double threshold(Kind kind, Object above) {
+    if (above instanceof Number n) {
+      return n.doubleValue();
+    }
+    return switch (kind) {
+      case GL -> DEFAULT_GL_THRESHOLD;
+      case PQ -> DEFAULT_PQ_THRESHOLD;
+      case UP -> DEFAULT_UP_STRIPS;
+    };
   }
 
   /** A training value between evaluations; never fires by itself. */

@@ -1,7 +1,7 @@
 package dev.stepwarden.engine;
 
 import dev.stepwarden.detectors.Detector;
-import dev.stepwarden.detectors.Detectors;
+import dev.stepwarden.detectors.DetectorKind;
 import dev.stepwarden.detectors.Evidence;
 import dev.stepwarden.detectors.OnsetLocator;
 import dev.stepwarden.detectors.OverfitDetector;
@@ -15,7 +15,6 @@ import java.util.LinkedHashMap;
 import java.util.List;
 import java.util.Map;
 import java.util.Optional;
-import java.util.Set;
 
 /**
  * The policy: feeds each sample to the guards in file order and turns the first that fires into a
@@ -27,7 +26,10 @@ import java.util.Set;
  * <ul>
  *   <li>at most one intervention per sample; a guard that fired rests for {@code then_wait}
  *       evaluations of its series;
- *   <li>after any intervention every detector forgets its window (the series starts a new regime);
+ *   <li>after any intervention the trend detectors forget their window (the series starts a new
+ *       regime), while the level that {@code rises} and the near-zero scale of {@code climbs} and
+ *       {@code wobbles} judge against stays that of the launch ({@link #beginGeneration} resets
+ *       or restores it);
  *   <li>rates are clamped to the limits; a guard that would lower the rate when it already sits
  *       on the floor ends the run: a divergence guard gives up (exit 4), any other stops early
  *       (exit 3) since lowering further is pointless (common practice);
@@ -36,10 +38,6 @@ import java.util.Set;
  * </ul>
  */
 public final class GuardEngine {
-  /** Detectors whose firing means the run is diverging rather than merely done. */
-  static final Set<String> DIVERGENCE = Set.of("breaks", "rises", "climbs", "wobbles",
-      "stuck_at_chance");
-
   static final String BUILT_IN_NON_FINITE = "(non-finite train value)";
 
   static final String UNDO_RAISE = "(undo raise)";
@@ -62,7 +60,8 @@ public final class GuardEngine {
     this.rate = file.run().learningRate();
     List<Armed> list = new ArrayList<>();
     for (Guard g : file.guards()) {
-      list.add(new Armed(g, Detectors.create(g.when())));
+      DetectorKind kind = DetectorKind.named(g.when().detector()).orElseThrow();
+      list.add(new Armed(g, kind, kind.create(g.when().series(), g.when().params())));
     }
     this.armed = list.toArray(new Armed[0]);
   }
@@ -138,7 +137,11 @@ public final class GuardEngine {
    */
   public void beginGeneration(long fromStep, boolean fromScratch) {
     for (Armed a : armed) {
-      a.detector.reset();
+      if (fromScratch) {
+        a.detector.reset();
+      } else {
+        a.detector.rewindTo(fromStep);
+      }
     }
     onset.reset();
     probation = null;
@@ -206,7 +209,7 @@ public final class GuardEngine {
   }
 
   private Optional<Decision> plan(Guard g, Sample s, Evidence evidence) {
-    boolean divergence = DIVERGENCE.contains(g.when().detector());
+    boolean divergence = armedBy(g).kind.divergence();
     double after = rate;
     String note = "";
     for (Action a : g.actions()) {
@@ -276,7 +279,13 @@ public final class GuardEngine {
       onset.reset();
     }
     for (Armed a : armed) {
-      a.detector.reset();
+      if (d.rewinds()) {
+        // The launch is ending: its remaining lines must not meet the band that just fired.
+        // beginGeneration(fromStep, false) restores the band of the checkpoint's time.
+        a.detector.rewindTo(Long.MIN_VALUE);
+      } else {
+        a.detector.rateChanged();
+      }
     }
     if (d.guard().equals(UNDO_RAISE)) {
       probation = null;
@@ -342,16 +351,27 @@ public final class GuardEngine {
     }
   }
 
+  private Armed armedBy(Guard g) {
+    for (Armed a : armed) {
+      if (a.guard == g) {
+        return a;
+      }
+    }
+    throw new IllegalStateException("guard '" + g.name() + "' is not armed");
+  }
+
   private static final class Armed {
     final Guard guard;
+    final DetectorKind kind;
     /** The watched series, interned like the samples' names so a lookup matches on identity. */
     final String series;
     final Detector detector;
     long evaluations;
     long restUntil;
 
-    Armed(Guard guard, Detector detector) {
+    Armed(Guard guard, DetectorKind kind, Detector detector) {
       this.guard = guard;
+      this.kind = kind;
       String s = guard.when().series();
       this.series = s == null ? null : s.intern();
       this.detector = detector;

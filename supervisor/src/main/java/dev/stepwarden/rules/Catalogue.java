@@ -1,9 +1,10 @@
 package dev.stepwarden.rules;
 
 import dev.stepwarden.stats.Prechelt;
-import java.util.LinkedHashMap;
+import dev.stepwarden.detectors.DetectorKind;
+import dev.stepwarden.detectors.Param;
+import java.util.ArrayList;
 import java.util.List;
-import java.util.Map;
 
 /**
  * Every key the guard file accepts, in one place: the loader, {@code check} and {@code schema}
@@ -123,63 +124,13 @@ final class Catalogue {
 
   static final List<String> ACTIONS = List.of("scale", "set_rate", "rewind", "stop", "give_up");
 
-  /** Detector name to (default series, parameters, plain description). */
-  static final Map<String, DetectorSpec> DETECTORS = detectors();
-
-  record DetectorSpec(String name, String defaultSeries, List<Key> params, String doc) {}
-
-  private static Map<String, DetectorSpec> detectors() {
-    Map<String, DetectorSpec> d = new LinkedHashMap<>();
-    d.put("breaks", new DetectorSpec("breaks", "train", List.of(),
-        "the series reports NaN or an infinity"));
-    d.put("rises", new DetectorSpec("rises", "train", List.of(
-        Key.factor("above_best", 3.0, 1.0, 1e6, "Fire when the smoothed value exceeds this many"
-            + " times the best smoothed value so far (3x or 3)."),
-        Key.integer("samples", 3, 1, 100_000, "... for this many samples in a row (each raw"
-            + " value above the limit too)."),
-        Key.number("smoothing", 0.2, 0, 0.9999, "The factor b of the bias-corrected moving"
-            + " average m = b m + (1 - b) x (0: no smoothing).")),
-        "the smoothed series rises far above its best"));
-    d.put("climbs", new DetectorSpec("climbs", "train", List.of(
-        Key.integer("over", 30, 4, 10_000, "Window of samples for the trend test."),
-        Key.number("p_below", 1e-4, 0, 1, "Significance level of the upward trend test.")),
-        "the series trends significantly upward"));
-    d.put("wobbles", new DetectorSpec("wobbles", "train", List.of(
-        Key.integer("over", 40, 6, 10_000, "Window of samples."),
-        Key.number("autocorr_below", -0.75, -1, 1, "Lag-1 autocorrelation of successive changes"
-            + " at or below this value means the changes keep flipping sign (white noise alone"
-            + " gives -0.5)."),
-        Key.fraction("net_change_below", 0.02, 0, 10, "... while the level moves by less than this"
-            + " fraction over the window.")),
-        "the series sloshes up and down without net progress"));
-    d.put("flattens", new DetectorSpec("flattens", "validation", List.of(
-        Key.integer("over", 5, 2, 100_000, "Number of evaluations without enough improvement."),
-        Key.fraction("gain_below", 0.005, 0, 1, "The best value must improve by at least this"
-            + " fraction within the window (0.5% or 0.005)."),
-        Key.number("p_below", 0.2, 0, 1, "No plateau while a downward trend is significant at"
-            + " this level.")),
-        "the best value has stopped improving"));
-    d.put("creeps", new DetectorSpec("creeps", "validation", List.of(
-        Key.integer("over", 8, 4, 100_000, "Window of evaluations."),
-        Key.number("p_below", 0.001, 0, 1, "Significance level of the downward trend."),
-        Key.fraction("pace_below", 0.002, 0, 1, "A trend slower than this fraction of the level"
-            + " per evaluation counts as slow.")),
-        "the series falls steadily but slowly"));
-    d.put("overfits", new DetectorSpec("overfits", "validation", List.of(
-        Key.choice("criterion", "GL", List.of("GL", "PQ", "UP"), "Which of Prechelt's"
-            + " criteria: GL (generalisation loss), PQ (GL over training progress), UP (rises"
-            + " in successive strips)."),
-        new Key("above", Key.Kind.NUMBER, null, 0, 1e6, false, null, "Threshold: alpha for GL"
-            + " (default 5) and PQ (default 0.75), the number of strips s for UP (default 3)."),
-        Key.integer("strip", 5, 1, 10_000, "Strip length k in training samples per evaluation.")),
-        "validation worsens while training still improves"));
-    d.put("stuck_at_chance", new DetectorSpec("stuck_at_chance", "train", List.of(
-        Key.integer("classes", null, 2, 1_000_000, "Number of classes; chance-level loss is"
-            + " ln(classes)."),
-        Key.fraction("tolerance", 0.05, 0, 1, "Within this fraction of ln(classes) counts as"
-            + " chance level."),
-        Key.integer("by_step", 500, 1, Integer.MAX_VALUE, "Judge at this step.")),
-        "the loss sits at chance level early on"));
-    return d;
+  /** The parameter keys of a detector, read from its one description, plus its series. */
+  static List<Key> detectorKeys(DetectorKind d) {
+    List<Key> keys = new ArrayList<>();
+    for (Param p : d.params()) {
+      keys.add(Key.of(p));
+    }
+    keys.add(Key.text("series", d.defaultSeries(), "The series this detector watches."));
+    return keys;
   }
 }

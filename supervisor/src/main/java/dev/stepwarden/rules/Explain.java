@@ -1,5 +1,7 @@
 package dev.stepwarden.rules;
 
+import dev.stepwarden.detectors.DetectorKind;
+import dev.stepwarden.detectors.Param;
 import dev.stepwarden.rules.GuardFile.Action;
 import dev.stepwarden.rules.GuardFile.Condition;
 import dev.stepwarden.rules.GuardFile.Guard;
@@ -66,27 +68,7 @@ public final class Explain {
   }
 
   static String condition(Condition c) {
-    String s = c.series();
-    return switch (c.detector()) {
-      case "breaks" -> s + " is NaN or infinite";
-      case "rises" -> "the smoothed " + s + " stays above " + num(c.number("above_best"))
-          + "x its best for " + c.integer("samples") + " samples";
-      case "climbs" -> s + " trends upward over " + c.integer("over")
-          + " samples (Mann-Kendall, p < " + num(c.number("p_below")) + ")";
-      case "wobbles" -> s + " keeps changing direction over " + c.integer("over")
-          + " samples while moving less than " + pct(c.number("net_change_below"));
-      case "flattens" -> "the best " + s + " has not improved by " + pct(c.number("gain_below"))
-          + " in " + c.integer("over") + " evaluations and no downward trend is significant"
-          + " (p < " + num(c.number("p_below")) + ")";
-      case "creeps" -> s + " falls significantly but by less than "
-          + pct(c.number("pace_below")) + " per evaluation over " + c.integer("over")
-          + " evaluations";
-      case "overfits" -> "Prechelt's " + c.params().get("criterion") + " criterion exceeds "
-          + num(c.number("above"));
-      case "stuck_at_chance" -> s + " is still within " + pct(c.number("tolerance"))
-          + " of chance level ln(" + c.integer("classes") + ") at step " + c.integer("by_step");
-      default -> c.detector() + " fires on " + s;
-    };
+    return DetectorKind.named(c.detector()).orElseThrow().explain(c.series(), c.params());
   }
 
   static String actions(Guard g) {
@@ -110,9 +92,7 @@ public final class Explain {
   }
 
   private static String num(double v) {
-    return v == Math.rint(v) && Math.abs(v) < 1e9 ? Long.toString((long) v)
-        : String.format(Locale.ROOT, "%.6g", v).replaceAll("0+(e|$)", "$1").replaceAll("\\.(e|$)",
-            "$1");
+    return Param.num(v);
   }
 
   private static String pct(double fraction) {

@@ -1,5 +1,6 @@
 package dev.stepwarden.rules;
 
+import dev.stepwarden.detectors.DetectorKind;
 import dev.stepwarden.metrics.MetricPatterns;
 import dev.stepwarden.metrics.Nearest;
 import dev.stepwarden.metrics.ReadPlan;
@@ -293,23 +294,21 @@ public final class GuardFiles {
     MapNode m = map(when, "'when' of guard '" + guard + "'");
     if (m.entries.size() != 1) {
       throw fail(m, "'when' of guard '" + guard + "' must name exactly one detector, one of "
-          + Catalogue.DETECTORS.keySet() + "; it names " + m.entries.size());
+          + DetectorKind.keys() + "; it names " + m.entries.size());
     }
     String detector = m.entries.keySet().iterator().next();
-    Catalogue.DetectorSpec spec = Catalogue.DETECTORS.get(detector);
-    if (spec == null) {
+    DetectorKind kind = DetectorKind.named(detector).orElse(null);
+    if (kind == null) {
       int[] at = m.keyPositions.get(detector);
       throw new ConfigException(file, at[0], at[1], "unknown detector '" + detector
-          + "' in guard '" + guard + "'" + suggestion(detector, Catalogue.DETECTORS.keySet())
-          + "; known detectors: " + Catalogue.DETECTORS.keySet());
+          + "' in guard '" + guard + "'" + suggestion(detector, DetectorKind.keys())
+          + "; known detectors: " + DetectorKind.keys());
     }
     ConfigNode paramsNode = m.entries.get(detector);
     MapNode params = paramsNode instanceof Scalar s && s.type == Scalar.Type.NULL
         ? new MapNode(s.line, s.column, new LinkedHashMap<>(), new LinkedHashMap<>())
         : map(paramsNode, "the parameters of '" + detector + "'");
-    List<Key> keys = new ArrayList<>(spec.params());
-    keys.add(Key.text("series", spec.defaultSeries(), "The series this detector watches."));
-    Map<String, Object> v = values(params, keys, guard + "." + detector);
+    Map<String, Object> v = values(params, Catalogue.detectorKeys(kind), guard + "." + detector);
     String series = (String) v.remove("series");
     if (!read.allSeries().containsKey(series)) {
       ConfigNode at = params.entries.getOrDefault("series", params);
@@ -322,6 +321,10 @@ public final class GuardFiles {
         && read.allSeries().containsKey("validation"))) {
       throw fail(m, "'overfits' compares the train and validation series; read.series must"
           + " name both");
+    }
+    Optional<String> conflict = kind.conflict(v);
+    if (conflict.isPresent()) {
+      throw fail(params, guard + "." + detector + ": " + conflict.get());
     }
     return new GuardFile.Condition(detector, series, v);
   }
@@ -503,9 +506,8 @@ public final class GuardFiles {
         } catch (NumberFormatException e) {
           throw fail(s, where + " must be a whole number, not " + text);
         }
-        if (value < k.min() || value > k.max()) {
-          throw fail(s, where + " is " + value + "; it must lie between " + (long) k.min()
-              + " and " + (long) k.max());
+        if (!k.accepts(value)) {
+          throw fail(s, where + " is " + value + "; it must lie " + k.range());
         }
         return (int) value;
       }
@@ -551,10 +553,8 @@ public final class GuardFiles {
   }
 
   private Double ranged(Key k, Scalar s, double v, String where) throws ConfigException {
-    if (v < k.min() || v > k.max()) {
-      String range = k.min() == Double.MIN_NORMAL ? "above 0 and at most " + k.max()
-          : "between " + k.min() + " and " + k.max();
-      throw fail(s, where + " is " + s.text + "; it must lie " + range);
+    if (!k.accepts(v)) {
+      throw fail(s, where + " is " + s.text + "; it must lie " + k.range());
     }
     return v;
   }

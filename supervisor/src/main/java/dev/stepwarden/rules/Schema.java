@@ -1,5 +1,6 @@
 package dev.stepwarden.rules;
 
+import dev.stepwarden.detectors.DetectorKind;
 import java.util.ArrayList;
 import java.util.LinkedHashMap;
 import java.util.List;
@@ -47,13 +48,12 @@ public final class Schema {
     when.put("maxProperties", 1);
     when.put("additionalProperties", false);
     Map<String, Object> detectors = new LinkedHashMap<>();
-    for (Catalogue.DetectorSpec d : Catalogue.DETECTORS.values()) {
-      List<Key> keys = new ArrayList<>(d.params());
-      keys.add(Key.text("series", d.defaultSeries(), "The series this detector watches."));
-      Map<String, Object> o = object(keys, ordered());
-      o.put("description", "Fires when " + d.doc() + ".");
+    for (DetectorKind d : DetectorKind.values()) {
+      Map<String, Object> o = object(Catalogue.detectorKeys(d), ordered());
+      o.put("description", "Fires when " + d.doc() + "." + (d.divergence()
+          ? " Its firing counts as divergence." : ""));
       o.put("type", List.of("object", "null"));
-      detectors.put(d.name(), o);
+      detectors.put(d.key(), o);
     }
     when.put("properties", detectors);
     Map<String, Object> guard = object(Catalogue.GUARD, ordered("when", when, "do", actions()));
@@ -140,8 +140,7 @@ public final class Schema {
     switch (k.kind()) {
       case NUMBER -> {
         p.put("type", "number");
-        p.put("minimum", k.min());
-        p.put("maximum", k.max());
+        p.putAll(bounds(k));
       }
       case INTEGER -> {
         p.put("type", "integer");
@@ -153,11 +152,9 @@ public final class Schema {
       case DURATION -> p.put("oneOf", List.of(ordered("type", "number", "minimum", 0),
           ordered("type", "string", "pattern", "^\\d+(\\.\\d+)?\\s*(ms|s|m|h|d)?$")));
       case FRACTION -> p.put("oneOf", List.of(
-          ordered("type", "number", "minimum", k.min(), "maximum", k.max()),
-          ordered("type", "string", "pattern", "^[0-9.eE+-]+\\s*%$")));
+          number(k), ordered("type", "string", "pattern", "^[0-9.eE+-]+\\s*%$")));
       case FACTOR -> p.put("oneOf", List.of(
-          ordered("type", "number", "minimum", k.min(), "maximum", k.max()),
-          ordered("type", "string", "pattern", "^[0-9.eE+-]+\\s*x$")));
+          number(k), ordered("type", "string", "pattern", "^[0-9.eE+-]+\\s*x$")));
       case STRING_LIST -> p.put("type", "array");
       case STRING_MAP -> {
         p.put("type", "object");
@@ -173,5 +170,19 @@ public final class Schema {
       p.put("default", k.defaultValue());
     }
     return p;
+  }
+
+  private static Map<String, Object> number(Key k) {
+    Map<String, Object> m = ordered("type", "number");
+    m.putAll(bounds(k));
+    return m;
+  }
+
+  /** JSON Schema bounds: an open end is an exclusive bound (2020-12, s6.2.3 and s6.2.5). */
+  private static Map<String, Object> bounds(Key k) {
+    Map<String, Object> m = new LinkedHashMap<>();
+    m.put(k.minOpen() ? "exclusiveMinimum" : "minimum", k.min());
+    m.put(k.maxOpen() ? "exclusiveMaximum" : "maximum", k.max());
+    return m;
   }
 }

@@ -101,9 +101,8 @@ final class DetectorTrials {
 
   // ---------------------------------------------------------------- detectors under test
 
-  static SpikeDetector spike() {
-    return new SpikeDetector(
-        SpikeDetector.DEFAULT_K, SpikeDetector.DEFAULT_SAMPLES, SpikeDetector.DEFAULT_BETA);
+  static Detector spike() {
+    return DetectorKind.RISES.create("train", java.util.Map.of());
   }
 
   static GrowthDetector growth() {
@@ -384,7 +383,7 @@ final class DetectorTrials {
     int n = 6000;
     double[] base = descending(n, 0.3, 2.0, 750);
     String[] shapes = {"jump x5", "jump x10", "growth x1.2/sample", "growth x1.5/sample", "growth x2/sample"};
-    double k = SpikeDetector.DEFAULT_K;
+    double k = DetectorKind.RISES.number(java.util.Map.of(), "above_level");
     for (double sigma : TRAIN_NOISE) {
       for (int shape = 0; shape < shapes.length; shape++) {
         List<Integer> spikeDelays = new ArrayList<>();
@@ -410,7 +409,7 @@ final class DetectorTrials {
             }
           }
           double[] x = noisy(clean, sigma, false, random);
-          SpikeDetector s = spike();
+          Detector s = spike();
           OnsetLocator locator =
               new OnsetLocator(
                   OnsetLocator.DEFAULT_WINDOW,

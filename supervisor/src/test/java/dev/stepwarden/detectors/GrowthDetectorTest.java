@@ -11,7 +11,8 @@ import org.junit.jupiter.api.Test;
 class GrowthDetectorTest {
 
   private static GrowthDetector defaults() {
-    return new GrowthDetector("train", GrowthDetector.DEFAULT_WINDOW, GrowthDetector.DEFAULT_ALPHA);
+    return new GrowthDetector(
+        "train", GrowthDetector.DEFAULT_WINDOW, GrowthDetector.DEFAULT_ALPHA, 0);
   }
 
   @Test
@@ -87,10 +88,10 @@ class GrowthDetectorTest {
   void rejectsBadParametersNamingThem() {
     assertThatThrownBy(() -> new GrowthDetector(2, 0.01))
         .isInstanceOf(IllegalArgumentException.class)
-        .hasMessageContaining("window")
+        .hasMessageContaining("over")
         .hasMessageContaining("2");
     assertThatThrownBy(() -> new GrowthDetector(30, 0))
         .isInstanceOf(IllegalArgumentException.class)
-        .hasMessageContaining("alpha");
+        .hasMessageContaining("p_below");
   }
 }

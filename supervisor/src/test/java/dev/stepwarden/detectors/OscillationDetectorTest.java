@@ -14,7 +14,8 @@ class OscillationDetectorTest {
         "train",
         OscillationDetector.DEFAULT_WINDOW,
         OscillationDetector.DEFAULT_MAX_AUTOCORR,
-        OscillationDetector.DEFAULT_MAX_REL_SLOPE);
+        OscillationDetector.DEFAULT_MAX_REL_SLOPE,
+        0);
   }
 
   @Test
@@ -75,13 +76,13 @@ class OscillationDetectorTest {
   void rejectsBadParametersNamingThem() {
     assertThatThrownBy(() -> new OscillationDetector(4, -0.75, 0.02))
         .isInstanceOf(IllegalArgumentException.class)
-        .hasMessageContaining("window");
+        .hasMessageContaining("over");
     assertThatThrownBy(() -> new OscillationDetector(40, 0.5, 0.02))
         .isInstanceOf(IllegalArgumentException.class)
-        .hasMessageContaining("maxAutocorr")
+        .hasMessageContaining("autocorr_below")
         .hasMessageContaining("0.5");
     assertThatThrownBy(() -> new OscillationDetector(40, -0.75, -1))
         .isInstanceOf(IllegalArgumentException.class)
-        .hasMessageContaining("maxRelSlope");
+        .hasMessageContaining("net_change_below");
   }
 }

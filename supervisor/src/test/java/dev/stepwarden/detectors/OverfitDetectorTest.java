@@ -123,7 +123,7 @@ class OverfitDetectorTest {
         .hasMessageContaining("strip");
     assertThatThrownBy(() -> new OverfitDetector(OverfitDetector.Kind.GL, -5, 5))
         .isInstanceOf(IllegalArgumentException.class)
-        .hasMessageContaining("threshold");
+        .hasMessageContaining("above");
     assertThatThrownBy(() -> new OverfitDetector(null, 5, 5))
         .isInstanceOf(IllegalArgumentException.class)
         .hasMessageContaining("kind");

@@ -69,11 +69,13 @@ class GuardEngineTest {
   @Test
   void divergenceAtTheFloorGivesUp() throws Exception {
     String rises = "  - name: spike\n"
-        + "    when: { rises: { above_best: 2, samples: 1, smoothing: 0 } }\n"
+        + "    when: { rises: { above_level: 2, samples: 1 } }\n"
         + "    do: { scale: 0.5 }\n";
     GuardEngine e = new GuardEngine(rules(rises, 0.001, 0.001));
-    e.onSample(train(1, 1.0));
-    Optional<Decision> d = e.onSample(train(2, 5.0));
+    for (int i = 0; i < 10; i++) {
+      e.onSample(train(i, 1.0 + 0.01 * (i % 3)));
+    }
+    Optional<Decision> d = e.onSample(train(10, 5.0));
     assertThat(d).hasValueSatisfying(x -> assertThat(x.ending())
         .isEqualTo(Decision.Ending.GIVE_UP));
   }
@@ -139,7 +141,7 @@ class GuardEngineTest {
   @Test
   void aNewGenerationFromScratchIsNotJudgedAgainstTheEndedLaunchsBest() throws Exception {
     String rises = "  - name: spike\n"
-        + "    when: { rises: { above_best: 3, samples: 1, smoothing: 0 } }\n"
+        + "    when: { rises: { above_level: 3, samples: 1 } }\n"
         + "    do: { scale: 0.5 }\n";
     GuardEngine e = new GuardEngine(rules(rises, 0.1, 1e-4));
     for (int i = 0; i < 20; i++) {

@@ -140,7 +140,7 @@ class ReplayTest {
         read: { from: stdout, format: json, step: step, series: { train: loss } }
         guards:
           - name: blow-up
-            when: { rises: { series: train, above_best: 3x, samples: 5 } }
+            when: { rises: { series: train, above_level: 3x, samples: 5 } }
             do: [ rewind, { scale: 0.5 } ]
         limits: { learning_rate: { min: 0.01, max: 1.0 }, rewinds: 2 }
         """);
@@ -223,7 +223,7 @@ class ReplayTest {
         read: { from: stdout, format: pairs, series: { train: loss } }
         guards:
           - name: blow-up
-            when: { rises: { series: train, above_best: 3x, samples: 2 } }
+            when: { rises: { series: train, above_level: 3x, samples: 2 } }
             do: { scale: 0.5 }
         """);
     Replay.Result r = Replay.run(GuardFiles.load(rules), file);

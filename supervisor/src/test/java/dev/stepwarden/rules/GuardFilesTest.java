@@ -27,7 +27,7 @@ class GuardFilesTest {
       "  keep: 5",
       "guards:",
       "  - name: blow-up",
-      "    when: { rises: { series: train, above_best: 3.0, samples: 3 } }",
+      "    when: { rises: { series: train, above_level: 3.0, samples: 3 } }",
       "    do: [ rewind, { scale: 0.5 } ]",
       "  - name: flat-validation",
       "    when: { flattens: { series: validation, over: 5, gain_below: 0.5% } }",

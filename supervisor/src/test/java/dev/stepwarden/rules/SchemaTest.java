@@ -2,6 +2,7 @@ package dev.stepwarden.rules;
 
 import static org.assertj.core.api.Assertions.assertThat;
 
+import dev.stepwarden.detectors.DetectorKind;
 import java.util.List;
 import java.util.Map;
 import org.junit.jupiter.api.Test;
@@ -42,10 +43,9 @@ class SchemaTest {
     Map<String, Object> guard = (Map<String, Object>) child(root, "guards").get("items");
     hasKeys(guard, Catalogue.GUARD);
     Map<String, Object> when = child(guard, "when");
-    assertThat(props(when).keySet()).containsExactlyElementsOf(Catalogue.DETECTORS.keySet());
-    for (Catalogue.DetectorSpec d : Catalogue.DETECTORS.values()) {
-      hasKeys(child(when, d.name()), d.params());
-      assertThat(props(child(when, d.name()))).containsKey("series");
+    assertThat(props(when).keySet()).containsExactlyElementsOf(DetectorKind.keys());
+    for (DetectorKind d : DetectorKind.values()) {
+      hasKeys(child(when, d.key()), Catalogue.detectorKeys(d));
     }
   }
 }

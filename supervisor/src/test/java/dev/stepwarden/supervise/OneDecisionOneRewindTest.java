@@ -25,7 +25,7 @@ class OneDecisionOneRewindTest {
   private static final String GUARD = "checkpoints: { watch: ckpt/step-*.json, keep: 10 }\n"
       + "guards:\n"
       + "  - name: blow-up\n"
-      + "    when: { rises: { series: train, above_best: 3x, samples: 2, smoothing: 0 } }\n"
+      + "    when: { rises: { series: train, above_level: 3x, samples: 2, noise_units: 3 } }\n"
       + "    do: [ rewind, { scale: 0.5 } ]\n"
       + "limits:\n  learning_rate: { min: 0.001, max: 1.0 }\n  rewinds: 5\n  silence: 20s\n";
 

@@ -140,14 +140,14 @@ class SteeringTest {
         "checkpoints: { watch: ckpt/last.json, keep: 10 }\n"
             + "guards:\n"
             + "  - name: blow-up\n"
-            + "    when: { rises: { series: train, above_best: 3x, samples: 2, smoothing: 0 } }\n"
+            + "    when: { rises: { series: train, above_level: 3x, samples: 2, noise_units: 3 } }\n"
             + "    do: [ rewind, { scale: 0.25 } ]\n"
             + "limits:\n  learning_rate: { min: 0.001, max: 1.0 }\n  silence: 10s\n"));
 
     assertThat(r.outcome()).isEqualTo(RunOutcome.FINISHED);
     List<Map<String, Object>> audit = n.audit();
     Map<String, Object> decision = ofType(audit, "decision").get(0);
-    long onset = num(((Map<?, ?>) decision.get("figures")).get("best_step"));
+    long onset = num(((Map<?, ?>) decision.get("figures")).get("onset_step"));
     assertThat(onset).isBetween(95L, 105L);
     Map<String, Object> rewind = ofType(audit, "outcome").stream()
         .filter(o -> "rewind".equals(o.get("reason"))).findFirst().orElseThrow();
