@@ -250,22 +250,8 @@ final class RunCommand implements Callable<Integer> {
         + " signal:NAME (e.g. signal:USR1)");
   }
 
-  private static final Pattern DURATION = Pattern.compile("(\\d+)\\s*(ms|s|m|h)?");
-
   static Duration duration(String text, String option) {
-    Matcher m = DURATION.matcher(text.trim());
-    if (!m.matches()) {
-      throw new IllegalArgumentException(option + " " + text + ": give a duration like 30s, 2m"
-          + " or 500ms");
-    }
-    long n = Long.parseLong(m.group(1));
-    String unit = m.group(2) == null ? "s" : m.group(2);
-    return switch (unit) {
-      case "ms" -> Duration.ofMillis(n);
-      case "m" -> Duration.ofMinutes(n);
-      case "h" -> Duration.ofHours(n);
-      default -> Duration.ofSeconds(n);
-    };
+    return dev.stepwarden.rules.Durations.option(option, text);
   }
 
   /** Runs a supervisor with a shutdown hook for SIGINT/SIGTERM; prints the short summary. */

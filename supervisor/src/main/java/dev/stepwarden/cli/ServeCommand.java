@@ -233,16 +233,7 @@ final class ServeCommand implements Callable<Integer> {
   }
 
   static Duration parseDuration(String text) {
-    java.util.regex.Matcher m = java.util.regex.Pattern.compile("(\\d+)(ms|s|m)?")
-        .matcher(text.strip());
-    if (!m.matches()) {
-      throw new IllegalArgumentException("--checkin '" + text + "': give a duration such as 5s"
-          + " or 1500ms");
-    }
-    long n = Long.parseLong(m.group(1));
-    String unit = m.group(2) == null ? "s" : m.group(2);
-    return unit.equals("ms") ? Duration.ofMillis(n) : unit.equals("m") ? Duration.ofMinutes(n)
-        : Duration.ofSeconds(n);
+    return dev.stepwarden.rules.Durations.option("--checkin", text);
   }
 
 }

@@ -33,9 +33,6 @@ public final class GuardFiles {
       Set.of("learning_rate", "resume_from", "skip_batches", "attempt", "run_dir");
 
   private static final Pattern PLACEHOLDER = Pattern.compile("\\{([^{}]*)}");
-  private static final Pattern DURATION =
-      Pattern.compile("(\\d+(?:\\.\\d+)?)\\s*(ms|s|m|h|d)?");
-
   private final Path file;
 
   private GuardFiles(Path file) {
@@ -560,25 +557,13 @@ public final class GuardFiles {
   }
 
   private Duration parseDuration(ConfigNode at, String text, Key k) throws ConfigException {
-    Matcher m = DURATION.matcher(text.trim());
-    if (!m.matches()) {
-      throw fail(at, k.name() + " must be a duration such as 30s, 15m, 2h or 500ms, not '"
-          + text + "'");
+    try {
+      return Durations.parse(text);
+    } catch (IllegalArgumentException e) {
+      throw fail(at, k.name() + " " + e.getMessage());
     }
-    double amount = Double.parseDouble(m.group(1));
-    String unit = m.group(2) == null ? "s" : m.group(2);
-    double millis = amount * switch (unit) {
-      case "ms" -> 1;
-      case "s" -> 1_000;
-      case "m" -> 60_000;
-      case "h" -> 3_600_000;
-      default -> 86_400_000;
-    };
-    if (millis > 365.0 * 86_400_000) {
-      throw fail(at, k.name() + " is " + text + "; at most a year is accepted");
-    }
-    return Duration.ofMillis(Math.round(millis));
   }
+
 
   private List<String> stringList(MapNode parent, String key) throws ConfigException {
     ConfigNode n = parent.entries.get(key);

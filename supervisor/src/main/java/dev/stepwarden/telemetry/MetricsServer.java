@@ -83,6 +83,11 @@ public final class MetricsServer implements AutoCloseable {
 
   private void handle(HttpExchange x) throws IOException {
     try (x) {
+      // the JDK's contexts match by prefix: /metricsXYZ and /metrics/a would be served too
+      if (!x.getRequestURI().getPath().equals("/metrics")) {
+        x.sendResponseHeaders(404, -1);
+        return;
+      }
       if (!x.getRequestMethod().equals("GET") && !x.getRequestMethod().equals("HEAD")) {
         x.getResponseHeaders().add("Allow", "GET, HEAD");
         x.sendResponseHeaders(405, -1);

@@ -30,7 +30,8 @@ import java.util.concurrent.atomic.AtomicLong;
  * Hooks run on pump threads: they only store numbers.
  *
  * <p>Meters (Prometheus names): {@code stepwarden_learning_rate}, {@code stepwarden_series_last
- * {series}}, {@code stepwarden_interventions_total{guard,action}}, {@code
+ * {series}}, {@code stepwarden_interventions_total{guard,action}} (one per decision, its actions
+ * joined by {@code +}: the report's count), {@code
  * stepwarden_rewinds_total}, {@code stepwarden_restarts_total}, {@code stepwarden_lines_read_total},
  * {@code stepwarden_lines_ignored_total}, {@code stepwarden_last_metric_timestamp_seconds} (when
  * the trainer last printed a metric, or was launched: a timestamp in seconds, so that the age is
@@ -126,13 +127,17 @@ public final class RunMeters implements RunObserver {
       return;
     }
     rate.v = d.rateAfter();
+    // one decision is one intervention, as in the report: a rewind with a scale counts once,
+    // under action="rewind+scale"
+    StringBuilder b = new StringBuilder();
     for (GuardFile.Action a : d.actions()) {
-      String action = actionName(a);
-      interventions.computeIfAbsent(d.guard() + "\u0000" + action, k -> keep(
-          Counter.builder("stepwarden.interventions").tags(tags.and("guard", d.guard(),
-              "action", action)).description("Guard interventions").register(registry)))
-          .increment();
+      b.append(b.length() == 0 ? "" : "+").append(actionName(a));
     }
+    String action = b.toString();
+    interventions.computeIfAbsent(d.guard() + "\u0000" + action, k -> keep(
+        Counter.builder("stepwarden.interventions").tags(tags.and("guard", d.guard(),
+            "action", action)).description("Guard interventions (one per decision)")
+            .register(registry))).increment();
   }
 
   static String actionName(GuardFile.Action a) {

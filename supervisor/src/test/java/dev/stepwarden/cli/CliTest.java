@@ -114,6 +114,13 @@ class CliTest {
   }
 
   @Test
+  void serveAndRunTakeTheGuardFilesDurationSyntax() {
+    assertThat(ServeCommand.parseDuration("1h")).isEqualTo(java.time.Duration.ofHours(1));
+    assertThat(RunCommand.duration("1.5m", "--preempt-wait"))
+        .isEqualTo(java.time.Duration.ofSeconds(90));
+  }
+
+  @Test
   void versionNamesTheProjectVersionAndTheControlProtocol() throws Exception {
     Out r = run("--version");
     assertThat(r.code()).isZero();

@@ -77,6 +77,21 @@ class MetricsEndpointTest {
   }
 
   @Test
+  void answersExactlyTheMetricsPathAndNothingThatOnlyStartsLikeIt() throws Exception {
+    HttpClient http = HttpClient.newHttpClient();
+    try (MetricsServer server = MetricsServer.start(MetricsServer.newRegistry(), "127.0.0.1",
+        0)) {
+      get(http, server.port());
+      for (String path : new String[] {"/metricsXYZ", "/metrics/", "/metrics/x", "/", "/m"}) {
+        HttpResponse<String> r = http.send(HttpRequest.newBuilder(
+            URI.create("http://127.0.0.1:" + server.port() + path)).build(),
+            HttpResponse.BodyHandlers.ofString());
+        assertThat(r.statusCode()).as(path).isEqualTo(404);
+      }
+    }
+  }
+
+  @Test
   void refusesATakenPortWithAMessageNamingIt() throws Exception {
     try (MetricsServer first = MetricsServer.start(MetricsServer.newRegistry(), "127.0.0.1", 0)) {
       int port = first.port();
