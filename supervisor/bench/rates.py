@@ -5,11 +5,14 @@ side in one run of this script:
 
 1. CPU added per line at each RATE: three process trees run at the same time on the same paced
    trainer (JSON lines, one write per line, as `print(..., flush=True)` does): the trainer alone
-   (stdout to /dev/null), `trainer | tee FILE`, and `stepwarden run -- trainer`. The CPU of each
-   whole tree (every thread of every process, the trainer included) is read from
+   (stdout to /dev/null), `trainer | tee FILE`, and `stepwarden run -- trainer` (echoing to
+   /dev/null, as tee does). The CPU of every thread of each process is read from
    /proc/PID/task/*/schedstat (nanoseconds) at the start and the end of a steady window that
    begins WARM seconds after the launch, so the JVM's start-up and the trainer's own start are
-   outside it. Added CPU = tree - trainer alone; per 10,000 lines = added / lines in the window.
+   outside it. The reader's CPU (tee; the run's JVM) per 10,000 lines is the headline; the
+   trainer's own extra (its CPU minus the lone trainer's: writing into a pipe with a reader that
+   wakes) is given beside it: on a busy machine it is mostly noise (two copies of one trainer
+   differ by more than it), which is why it is not subtracted from a whole-tree total.
    A thread that ends inside the window takes its CPU with it (the JVM keeps its threads).
 2. An idle night: `stepwarden run` of a trainer that prints one line and then sleeps, beside the
    same sleeper alone; CPU of the window scaled to one hour.
@@ -144,7 +147,8 @@ def java_run(guards, argv, env=None, stdout=subprocess.DEVNULL):
     global runs
     runs += 1
     run_dir = os.path.join(WORK, "run%d" % runs)
-    cmd = ["java", *JVM_OPTS, "-jar", JAR, "run", "--quiet", "--rules", guards,
+    # Not --quiet: the run echoes the trainer's lines to its stdout (/dev/null), as tee does.
+    cmd = ["java", *JVM_OPTS, "-jar", JAR, "run", "--rules", guards,
            "--run-dir", run_dir, "--", *argv]
     p = subprocess.Popen(cmd, stdout=stdout, stderr=open(run_dir + ".err", "w"),
                          env=env or os.environ)
@@ -200,8 +204,13 @@ def rss_mb(pid):
     return vals.get("VmRSS", float("nan")), vals.get("VmHWM", float("nan"))
 
 
+def own_cpu_ns(pid):
+    return tree_cpu_ns([pid], {})
+
+
 def cpu_round(rate, seconds, mode):
-    """Three trees side by side; returns (lines in window, cpu alone, tee, run, rss, hwm)."""
+    """Three trees side by side. Returns (lines in window, window, CPU seconds of: the trainer
+    alone, the trainer into tee, tee, the trainer under the run, the run's JVM), rss, hwm, exit."""
     env = dict(os.environ, PYTHONUNBUFFERED="1")
     targv = [PY, trainer_py, str(rate), str(seconds), "0", mode]
     alone = subprocess.Popen(targv, stdout=subprocess.DEVNULL, env=env)
@@ -211,14 +220,16 @@ def cpu_round(rate, seconds, mode):
     t1.stdout.close()
     run, _ = java_run(steer_yaml, targv, env)
     time.sleep(WARM)
-    kids = children()
-    a0 = [tree_cpu_ns([p.pid], kids) for p in (alone,)] + [tree_cpu_ns([t1.pid, tee.pid], kids),
-                                                         tree_cpu_ns([run.pid], kids)]
+
+    def sample():
+        kids = children()
+        trainer_under_run = kids.get(run.pid, [])
+        return [own_cpu_ns(alone.pid), own_cpu_ns(t1.pid), own_cpu_ns(tee.pid),
+                tree_cpu_ns(trainer_under_run, kids), own_cpu_ns(run.pid)]
+    a0 = sample()
     w0 = time.monotonic()
     time.sleep(WINDOW if mode != "idle" else IDLE)
-    kids = children()
-    a1 = [tree_cpu_ns([alone.pid], kids), tree_cpu_ns([t1.pid, tee.pid], kids),
-          tree_cpu_ns([run.pid], kids)]
+    a1 = sample()
     w = time.monotonic() - w0
     rss, hwm = rss_mb(run.pid)
     for p in (alone, t1, tee, run):
@@ -306,22 +317,25 @@ print("stepwarden, paced trainer (one JSON line per write); load average at star
 rows = []
 idle_proc = None
 for rate in RATES:
-    n, w, (alone, tee, run), rss, hwm, rc = cpu_round(rate, WARM + WINDOW + 2, "plain")
-    add_tee, add_run = tee - alone, run - alone
-    rows.append((rate, n, add_tee, add_run, rss, hwm))
-    print("%5d lines/s, %.1f s window, %d lines: trainer alone %.3f s CPU; added by tee FILE "
-          "%.3f s, by stepwarden run %.3f s (%.3f and %.3f s per 10,000 lines, ratio %.2f); "
-          "RSS %.0f MB (peak %.0f); exit %s"
-          % (rate, w, n, alone, add_tee, add_run, add_tee / n * 1e4, add_run / n * 1e4,
-             add_run / add_tee if add_tee > 0 else float("nan"), rss, hwm, rc), flush=True)
+    n, w, (alone, t_tee, tee, t_run, run), rss, hwm, rc = cpu_round(rate, WARM + WINDOW + 2,
+                                                                    "plain")
+    rows.append((rate, n, tee, run, t_tee - alone, t_run - alone, hwm))
+    print("%5d lines/s, %.1f s window, %d lines: CPU of tee %.3f s, of the run's JVM %.3f s "
+          "(%.3f and %.3f s per 10,000 lines, ratio %.2f); the trainer itself: alone %.3f s, "
+          "into tee %+.3f s, under the run %+.3f s; RSS %.0f MB (peak %.0f); exit %s"
+          % (rate, w, n, tee, run, tee / n * 1e4, run / n * 1e4,
+             run / tee if tee > 0 else float("nan"), alone, t_tee - alone, t_run - alone, rss,
+             hwm, rc), flush=True)
 
-_, w, (alone, _tee, run), rss, hwm, rc = cpu_round(1, WARM + IDLE + 2, "idle")
-idle_per_hour = (run - alone) / w * 3600
-print("idle night: %.1f s window, stepwarden run added %.3f s CPU = %.2f s per hour; "
-      "RSS %.0f MB" % (w, run - alone, idle_per_hour, rss), flush=True)
+idle_per_hour = float("nan")
+if IDLE > 0:
+    _, w, (_a, _tt, _tee, _tr, run), rss, hwm, rc = cpu_round(1, WARM + IDLE + 2, "idle")
+    idle_per_hour = run / w * 3600
+    print("idle night: %.1f s window, the run's JVM used %.3f s CPU = %.2f s per hour; "
+          "RSS %.0f MB" % (w, run, idle_per_hour, rss), flush=True)
 
 react = {}
-for rate in (200, 5000):
+for rate in ((200, 5000) if LAT_SECONDS > 0 else ()):
     lat, warm_lat, missed, rc = reaction(rate)
     stops = stop_latency(rate)
     react[rate] = (lat, stops)
@@ -332,13 +346,14 @@ for rate in (200, 5000):
 print()
 print("load average at end: %s" % " ".join(uptime()))
 print()
-print("| lines/s | `tee FILE` adds (CPU per 10,000 lines) | `stepwarden run` adds | ratio |"
-      " RSS of the run |")
-print("|---|---|---|---|---|")
-for rate, n, t, r, rss, hwm in rows:
-    print("| %s | %.3f s | %.3f s | %.2fx | %.0f MB |" % (
-        format(rate, ","), t / n * 1e4, r / n * 1e4, r / t if t > 0 else float("nan"), hwm))
-print("| idle (one line, then silence) | — | %.2f s per hour | — | |" % idle_per_hour)
+print("| lines/s | `tee FILE` (CPU per 10,000 lines) | `stepwarden run` (its JVM) | ratio |"
+      " the trainer's own extra, into tee / under the run | RSS of the run |")
+print("|---|---|---|---|---|---|")
+for rate, n, t, r, xt, xr, hwm in rows:
+    print("| %s | %.3f s | %.3f s | %.2fx | %+.3f s / %+.3f s | %.0f MB |" % (
+        format(rate, ","), t / n * 1e4, r / n * 1e4, r / t if t > 0 else float("nan"),
+        xt / n * 1e4, xr / n * 1e4, hwm))
+print("| idle (one line, then silence) | — | %.2f s per hour | — | — | |" % idle_per_hour)
 for rate, (lat, stops) in react.items():
     print("| reaction at %s lines/s | NaN -> control file: %s | NaN -> SIGTERM of a stop: %s"
-          " | | |" % (format(rate, ","), fmt_ms(lat), fmt_ms(stops)))
+          " | | | |" % (format(rate, ","), fmt_ms(lat), fmt_ms(stops)))

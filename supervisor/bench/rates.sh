@@ -5,15 +5,18 @@
 # and resident memory. Method and resolution: the docstring of rates.py.
 # Usage: supervisor/bench/rates.sh            (about 8 minutes; needs python3 and Linux /proc)
 # Tunables (environment): RATES=10,100,500,5000 WARM=10 WINDOW=20 IDLE=60 LAT_SECONDS=30
-#   BAD_EVERY=0.5 STOP_RUNS=10 STOP_AFTER=4 POLL_US=200; SKIP_BUILD=1 reuses target/stepwarden.jar.
+#   BAD_EVERY=0.5 STOP_RUNS=10 STOP_AFTER=4 POLL_US=200 (IDLE=0 or LAT_SECONDS=0 skip those
+#   parts); SKIP_BUILD=1 reuses target/stepwarden.jar; STEPWARDEN_JAR=PATH measures another build
+#   (its class-data archive is the .jsa beside it).
 set -eu
 HERE=$(cd "$(dirname "$0")" && pwd)
 MOD=$(dirname "$HERE")
 W=$(mktemp -d "${TMPDIR:-/tmp}/stepwarden-rates.XXXXXX")
 trap 'rm -rf "$W"' EXIT
 cd "$MOD"
-[ "${SKIP_BUILD:-}" = 1 ] || mvn -B -q -DskipTests package >/dev/null
+JAR=${STEPWARDEN_JAR:-$MOD/target/stepwarden.jar}
+[ "${SKIP_BUILD:-}" = 1 ] || [ -n "${STEPWARDEN_JAR:-}" ] || mvn -B -q -DskipTests package >/dev/null
 # The supervisor's JVM as the README alias launches it (as flood.sh does).
 JVM=${STEPWARDEN_JVM_OPTS:--XX:+UseSerialGC -Xms32m -Xmx256m}
-RUNJVM="$JVM -XX:SharedArchiveFile=$MOD/target/stepwarden.jsa -Xlog:cds=off -Xlog:cds+dynamic=off"
-python3 "$HERE/rates.py" "$MOD/target/stepwarden.jar" "$RUNJVM" "$W"
+RUNJVM="$JVM -XX:SharedArchiveFile=${JAR%.jar}.jsa -Xlog:cds=off -Xlog:cds+dynamic=off"
+python3 "$HERE/rates.py" "$JAR" "$RUNJVM" "$W"

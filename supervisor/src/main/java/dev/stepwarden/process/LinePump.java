@@ -8,7 +8,11 @@ import java.util.Arrays;
 import java.util.concurrent.ArrayBlockingQueue;
 import java.util.concurrent.CompletableFuture;
 import java.util.concurrent.CountDownLatch;
+import java.util.concurrent.ScheduledThreadPoolExecutor;
 import java.util.concurrent.TimeUnit;
+import java.util.concurrent.atomic.AtomicBoolean;
+import java.util.concurrent.atomic.AtomicInteger;
+import java.util.concurrent.locks.LockSupport;
 import java.util.function.Consumer;
 
 /**
@@ -24,6 +28,16 @@ import java.util.function.Consumer;
  * is bounded: a listener slower than the trainer for long blocks the trainer rather than memory
  * growing. {@link #run()} returns, and {@link #await()} releases, only when every line read has
  * been delivered.
+ *
+ * <p>A trickle (a trainer printing a line now and then, as real ones do) takes a cheaper path: a
+ * small read (it emptied the pipe) with nothing queued or being delivered is delivered on the
+ * reading thread itself, so a line costs no thread hand-off (two context switches). While it
+ * is being delivered the pipe still holds 64 KiB of further output, seconds of a trickle; a
+ * bigger next read is queued again. Trickle reads come at most every {@link #GATHER_NANOS}, so
+ * lines printed faster than that are read a few at a time. The log is written through a buffer that
+ * a shared timer flushes {@link #FLUSH_MILLIS} after it was first written to (one write system
+ * call per interval instead of one per read), on {@link #flushLog()} and at the end of the
+ * stream; an idle stream schedules nothing.
  */
 final class LinePump implements Runnable, LineSplitter.Sink {
   static final int CHUNK = 64 * 1024; // the Linux default pipe capacity: one read empties a full pipe
@@ -35,6 +49,18 @@ final class LinePump implements Runnable, LineSplitter.Sink {
    */
   private static final int LOG_BUFFER = 32 * 1024;
   private static final int ECHO_KEEP = 128 * 1024;
+  /** A read at most this big, with nothing more waiting, may be delivered on the reading thread. */
+  static final int INLINE_READ = 16 * 1024;
+  /** The longest a byte stays in the log's buffer (a kill -9 of the supervisor loses at most it). */
+  static final long FLUSH_MILLIS = 200;
+  /**
+   * Reads of a trickle come at most this often: a line may wait this long in the pipe (the
+   * reaction to it with it), and at 500 lines/s a read takes two or three lines instead of one.
+   * Slower trickles are read at once, line by line; a flood's full reads never wait.
+   */
+  static final long GATHER_NANOS = TimeUnit.MILLISECONDS.toNanos(4);
+  /** One daemon thread for every pump's timed log flush; it sleeps while nothing is due. */
+  private static final ScheduledThreadPoolExecutor FLUSHER = flusher();
   /** Marks the end of the stream in the delivery queue. */
   private static final LineBatch END = new LineBatch();
 
@@ -54,10 +80,21 @@ final class LinePump implements Runnable, LineSplitter.Sink {
   private LineBatch batch;
   private final CountDownLatch done = new CountDownLatch(1);
   private final CompletableFuture<Void> finished = new CompletableFuture<>();
+  /** Guarded by {@code this}: the reading thread writes it, the flusher and others flush it. */
   private OutputStream log;
-  /** Delivery thread only. */
+  private final AtomicBoolean flushDue = new AtomicBoolean();
+  /**
+   * Batches queued or being delivered. Only the reading thread raises it, so at zero the delivery
+   * thread is idle and stays so until the reader queues again: the reader may deliver itself.
+   */
+  private final AtomicInteger inFlight = new AtomicInteger();
+  /** The delivering thread's (never two at once: see {@link #inFlight}). */
   private boolean listenerFailed;
   private long delivered;
+  /** Reading thread only: when the previous read returned. */
+  private long lastReadAt = System.nanoTime() - GATHER_NANOS;
+  private boolean paused;
+  private long pausedUntil;
   private byte[] echoBuf;
   private int echoLen;
   private volatile long linesPublished;
@@ -126,14 +163,30 @@ final class LinePump implements Runnable, LineSplitter.Sink {
         if (n == 0) {
           continue;
         }
+        long readAt = System.nanoTime();
         writeLog(buf, n);
         splitter.feed(buf, 0, n, this);
-        flushBatch();
         flushEcho();
-        publish();
-        if (nothingWaiting()) {
-          flushLog(); // about to block: make the log current for anyone tailing it
+        // A read shorter than the buffer emptied the pipe: nothing more is waiting right now.
+        boolean trickle = n <= INLINE_READ;
+        if (trickle && inFlight.get() == 0) {
+          deliverInline();
+        } else {
+          flushBatch();
         }
+        publish();
+        // Lines come faster than one per GATHER_NANOS (two reads closer than that, or lines were
+        // waiting at once after the last pause): let a few gather in the pipe, so that one
+        // wake-up reads them together (a wake-up costs more than the lines it reads).
+        boolean fast = readAt - lastReadAt < GATHER_NANOS
+            || (paused && readAt - pausedUntil < GATHER_NANOS / 4);
+        paused = false;
+        if (trickle && fast) {
+          LockSupport.parkNanos(GATHER_NANOS - (System.nanoTime() - readAt));
+          paused = true;
+          pausedUntil = System.nanoTime();
+        }
+        lastReadAt = readAt;
       }
     } catch (IOException e) {
       failures.accept(new IOException("reading the trainer's " + name() + " failed", e));
@@ -167,6 +220,7 @@ final class LinePump implements Runnable, LineSplitter.Sink {
     if (batch.size() == 0) {
       return;
     }
+    inFlight.incrementAndGet();
     putUninterruptibly(queued, batch);
     LineBatch next = free.poll();
     if (next == null) {
@@ -188,16 +242,34 @@ final class LinePump implements Runnable, LineSplitter.Sink {
         return;
       }
       try {
-        deliver(b);
-        delivered += b.size();
-      } catch (RuntimeException | Error e) {
-        // Even an Error must not stop the recycling, or the reading thread would wait forever
-        // for a free batch and the trainer on its pipe.
-        listenerFailed(e);
+        deliverCounted(b);
       } finally {
         b.clear();
         free.offer(b); // never full: at most QUEUED_BATCHES batches exist besides the one filling
+        inFlight.decrementAndGet(); // after the delivery: the reader sees its effects at zero
       }
+    }
+  }
+
+  /** The read's lines on this thread: nothing is queued or being delivered, so order holds. */
+  private void deliverInline() {
+    if (batch.size() == 0) {
+      return;
+    }
+    try {
+      deliverCounted(batch);
+    } finally {
+      batch.clear();
+    }
+  }
+
+  private void deliverCounted(LineBatch b) {
+    try {
+      deliver(b);
+      delivered += b.size();
+    } catch (RuntimeException | Error e) {
+      // Even an Error must not stop the pump, or the trainer would wait on its pipe.
+      listenerFailed(e);
     }
   }
 
@@ -270,14 +342,6 @@ final class LinePump implements Runnable, LineSplitter.Sink {
     return stream == TrainerStream.STDOUT ? "stdout" : "stderr";
   }
 
-  private boolean nothingWaiting() {
-    try {
-      return in.available() == 0;
-    } catch (IOException e) {
-      return true;
-    }
-  }
-
   private void publish() {
     linesPublished = splitter.lines();
     oversizedPublished = splitter.oversized();
@@ -295,7 +359,7 @@ final class LinePump implements Runnable, LineSplitter.Sink {
     }
   }
 
-  private void writeLog(byte[] b, int n) {
+  private synchronized void writeLog(byte[] b, int n) {
     if (log == null) {
       return;
     }
@@ -303,10 +367,20 @@ final class LinePump implements Runnable, LineSplitter.Sink {
       log.write(b, 0, n);
     } catch (IOException e) {
       dropLog(e);
+      return;
+    }
+    if (flushDue.compareAndSet(false, true)) {
+      FLUSHER.schedule(this::timedFlush, FLUSH_MILLIS, TimeUnit.MILLISECONDS);
     }
   }
 
-  private void flushLog() {
+  private void timedFlush() {
+    flushDue.set(false); // first: bytes written from now on schedule the next flush
+    flushLog();
+  }
+
+  /** Writes what the log's buffer holds to the file now (any thread). */
+  synchronized void flushLog() {
     if (log == null) {
       return;
     }
@@ -315,6 +389,15 @@ final class LinePump implements Runnable, LineSplitter.Sink {
     } catch (IOException e) {
       dropLog(e);
     }
+  }
+
+  private static ScheduledThreadPoolExecutor flusher() {
+    ScheduledThreadPoolExecutor e = new ScheduledThreadPoolExecutor(1, r -> {
+      Thread t = new Thread(r, "stepwarden-log-flush");
+      t.setDaemon(true);
+      return t;
+    });
+    return e;
   }
 
   /** A full disk must not stall the trainer: report once, keep draining without the log. */
@@ -330,7 +413,7 @@ final class LinePump implements Runnable, LineSplitter.Sink {
     }
   }
 
-  private void closeLog() {
+  private synchronized void closeLog() {
     if (log == null) {
       return;
     }

@@ -281,6 +281,16 @@ public final class TrainerProcess implements AutoCloseable {
     }
   }
 
+  /**
+   * Writes what the logs' buffers hold to the files now. The pumps do so by themselves within
+   * {@link LinePump#FLUSH_MILLIS} of a write and at the end of the output; a supervisor calls this
+   * before it acts on a decision, so the logs hold the lines the decision was made on.
+   */
+  public void flushLogs() {
+    out.flushLog();
+    err.flushLog();
+  }
+
   /** Lines handed to the listener so far, both streams. */
   public long linesRead() {
     return out.lines() + err.lines();
