@@ -26,7 +26,10 @@ final class Catalogue {
           + " trainer confirmed it)."),
       Key.number("pick", 0.3, 1e-6, 1, "The run starts at this fraction of the range's upper"
           + " end (the rate where the smoothed loss was lowest before it turned ragged or"
-          + " rose)."));
+          + " rose)."),
+      Key.integer("branch", 0, 0, 1_000_000, "Then check the pick: from scratch, run this many"
+          + " training samples at the pick x 1/2, 1 and 2 each and start at the best branch's"
+          + " rate (successive halving with a noise-aware comparison; 0: no check)."));
 
   static final List<Key> RUN = List.of(
       Key.text("name", null, "A name for the run, used in reports (default: the file's name)."),

@@ -42,7 +42,10 @@ public final class Explain {
         + " samples each), reads the usable range off the loss (where it starts to fall to where"
         + " it turns ragged or rises), starts at " + num(p.pick()) + "x its upper end, and"
         + " starts the trainer again from scratch with that rate (range test, Smith 2017,"
-        + " s3.3)."));
+        + " s3.3)." + (p.branch() > 0 ? " Then it checks the pick: three launches from scratch"
+        + " at the pick x 1/2, 1 and 2, " + p.branch() + " training samples each, and the run"
+        + " starts at the rate of the branch whose loss is lowest by more than noise (successive"
+        + " halving, Li et al. 2017)." : "")));
     f.checkpoints().ifPresent(c -> out.add("Checkpoints: files matching " + c.watch()
         + "; the vault keeps the best and the last " + c.keep() + " healthy ones."));
     if (f.guards().isEmpty()) {

@@ -60,8 +60,16 @@ public record GuardFile(Path source, Run run, ReadPlan read, Steer steer,
    * geometrically from {@code from} to {@code to}, each rate held for {@code hold} training
    * samples, over at most {@code steps} rates; the usable range is read off the loss curve
    * ({@link RangeTest}) and the run starts from scratch at {@code pick} times its upper end.
+   * With {@code branch > 0} the pick is then checked: three launches from scratch at the pick
+   * x 1/2, 1 and 2 run {@code branch} training samples each, and the run starts at the rate of
+   * the branch kept ({@code controller.BranchChoice}: successive halving, noise-aware).
    */
-  public record Probe(double from, double to, int steps, int hold, double pick) {}
+  public record Probe(double from, double to, int steps, int hold, double pick, int branch) {
+    /** A probe without the check of its pick. */
+    public Probe(double from, double to, int steps, int hold, double pick) {
+      this(from, to, steps, hold, pick, 0);
+    }
+  }
 
   /**
    * What to launch.

@@ -232,7 +232,7 @@ public final class GuardFiles {
       throw fail(node, "the probe reads the 'train' series; name it in read.series");
     }
     return Optional.of(new GuardFile.Probe(from, to, (Integer) v.get("steps"),
-        (Integer) v.get("hold"), (Double) v.get("pick")));
+        (Integer) v.get("hold"), (Double) v.get("pick"), (Integer) v.get("branch")));
   }
 
   private GuardFile.Limits limits(MapNode node) throws ConfigException {

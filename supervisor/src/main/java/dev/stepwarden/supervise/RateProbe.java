@@ -18,7 +18,8 @@ import java.util.List;
  * stdout, stderr and followed files. Used under the supervisor's lock.
  */
 final class RateProbe {
-  private final GuardFile.Probe probe;
+  private final int hold;
+  private final double pick;
   private final MetricsSources sources;
   private final double[] ramp;
   private final double[] sum;
@@ -27,13 +28,34 @@ final class RateProbe {
   private long steps;
   private double lowestMean = Double.POSITIVE_INFINITY;
   private boolean done;
+  /** The losses booked at the last level, in order (a branch's whole series). */
+  private final List<Double> lastLevel = new ArrayList<>();
 
   RateProbe(GuardFile.Probe probe, ReadPlan plan) {
-    this.probe = probe;
+    this(RangeTest.ramp(probe.from(), probe.to(), probe.steps()), probe.hold(), probe.pick(),
+        plan);
+  }
+
+  private RateProbe(double[] ramp, int hold, double pick, ReadPlan plan) {
+    this.hold = hold;
+    this.pick = pick;
     this.sources = new MetricsSources(plan);
-    this.ramp = RangeTest.ramp(probe.from(), probe.to(), probe.steps());
+    this.ramp = ramp;
     this.sum = new double[ramp.length];
     this.count = new int[ramp.length];
+  }
+
+  /**
+   * One branch of the check of the probe's pick: a single rate held for {@code samples}
+   * training samples; done then, or at the first non-finite loss.
+   */
+  static RateProbe branch(double rate, int samples, ReadPlan plan) {
+    return new RateProbe(new double[] {rate}, samples, 1.0, plan);
+  }
+
+  /** The losses booked at the last rate of the ramp (for a branch: all of them). */
+  double[] lastLevelLosses() {
+    return lastLevel.stream().mapToDouble(Double::doubleValue).toArray();
   }
 
   double rate() {
@@ -81,6 +103,9 @@ final class RateProbe {
     }
     steps++;
     int at = levelOf(r.hasRate() ? r.reportedRate() : ramp[level]);
+    if (at == ramp.length - 1) {
+      lastLevel.add(loss);
+    }
     if (!Double.isFinite(loss)) {
       done = true; // the rate at this level is past the usable range
       sum[at] = Double.NaN;
@@ -89,7 +114,7 @@ final class RateProbe {
     }
     sum[at] += loss;
     count[at]++;
-    if (at == level && count[at] >= probe.hold()) {
+    if (at == level && count[at] >= hold) {
       double mean = sum[at] / count[at];
       lowestMean = Math.min(lowestMean, mean);
       if (mean > RangeTest.RUNAWAY * lowestMean || level == ramp.length - 1) {
@@ -131,7 +156,7 @@ final class RateProbe {
           "the trainer reported no training loss during the probe");
     }
     return RangeTest.read(rates.stream().mapToDouble(Double::doubleValue).toArray(),
-        losses.stream().mapToDouble(Double::doubleValue).toArray(), probe.pick());
+        losses.stream().mapToDouble(Double::doubleValue).toArray(), pick);
   }
 
   /** Rates and mean losses per level, for the audit record. */

@@ -2,6 +2,7 @@ package dev.stepwarden.supervise;
 
 import dev.stepwarden.audit.AuditLog;
 import dev.stepwarden.checkpoints.CheckpointLedger;
+import dev.stepwarden.controller.BranchChoice;
 import dev.stepwarden.checkpoints.CheckpointVault;
 import dev.stepwarden.rundir.RunBusyException;
 import dev.stepwarden.rundir.RunLock;
@@ -215,6 +216,8 @@ public final class Supervisor {
   private long stateSavedStep = -1;
   private long stateSavedMillis;
   private JsonNode resumed;
+  /** The probe's launch printed no training loss: the run ends instead of guessing. */
+  private boolean probeReadNothing;
   /** Non-null while the rate probe's throw-away launch runs. */
   private RateProbe probing;
 
@@ -314,6 +317,15 @@ public final class Supervisor {
     try {
       if (interrupted) {
         return interruptedBeforeLaunch();
+      }
+      if (probeReadNothing) {
+        synchronized (lock) {
+          return result(RunOutcome.GAVE_UP, "the rate probe read no training loss from the"
+              + " trainer: check that read.series.train names the key of the training loss the"
+              + " trainer prints (" + rules.read().allSeries().get("train") + ") and that it"
+              + " prints one before its first checkpoint; trainer.stdout.log and"
+              + " trainer.stderr.log in the run directory show what it printed");
+        }
       }
       Planned plan = planned;
       launch(resumed == null ? "start" : "resume",
@@ -461,13 +473,104 @@ public final class Supervisor {
    */
   private void probe(GuardFile.Probe p) throws IOException, InterruptedException {
     RateProbe rp = new RateProbe(p, rules.read());
+    if (!throwAway(rp, "rate probe")) {
+      return;
+    }
+    double rate = rules.run().learningRate();
+    dev.stepwarden.stats.RangeTest.Reading r;
+    synchronized (lock) {
+      r = rp.reading();
+      if (r.found()) {
+        rate = clampRate(r.pick());
+      }
+      Map<String, Object> f = new LinkedHashMap<>();
+      f.put("steps", rp.steps());
+      f.put("found", r.found());
+      f.put("lower", r.found() ? r.lower() : null);
+      f.put("upper", r.found() ? r.upper() : null);
+      f.put("learning_rate", rate);
+      f.put("note", r.note());
+      f.put("levels", rp.levels());
+      audit.append("probe", f);
+      say("rate probe: " + r.note());
+      if (rp.steps() == 0) {
+        probeReadNothing = true;
+        return;
+      }
+    }
+    if (r.found() && p.branch() > 0) {
+      rate = checkPick(rate, p.branch());
+    }
+    synchronized (lock) {
+      GuardFile.Run run = rules.run();
+      rules = rules.withRun(new GuardFile.Run(run.name(), run.command(), rate, run.workdir(),
+          run.env(), run.stopGrace()));
+      engine = new GuardEngine(rules);
+      if (ledger != null) {
+        ledger.baseline();
+      }
+      lastMetricMillis = clock.millis();
+    }
+  }
+
+  private double clampRate(double rate) {
+    return Math.min(rules.limits().maxRate(), Math.max(rules.limits().minRate(), rate));
+  }
+
+  /**
+   * Checks the probe's pick (one rung of successive halving, Li et al. 2017, anchored on the
+   * pick): launches from scratch at the pick x 1/2, 1 and 2 for {@code samples} training samples
+   * each, and keeps the rate whose branch ends lowest by more than noise ({@link BranchChoice}).
+   * The branches, their cost and the verdict go to the audit log as one {@code branches} record.
+   */
+  private double checkPick(double pick, int samples) throws IOException, InterruptedException {
+    double[] rates = {clampRate(pick / 2), pick, clampRate(pick * 2)};
+    List<BranchChoice.Branch> branches = new ArrayList<>();
+    List<Map<String, Object>> rows = new ArrayList<>();
+    for (double rate : rates) {
+      RateProbe b = RateProbe.branch(rate, samples, rules.read());
+      if (!throwAway(b, "rate branch")) {
+        return pick;
+      }
+      double[] losses = b.lastLevelLosses();
+      branches.add(new BranchChoice.Branch(rate, losses));
+      Map<String, Object> row = new LinkedHashMap<>();
+      row.put("learning_rate", rate);
+      row.put("steps", b.steps());
+      rows.add(row);
+    }
+    BranchChoice.Verdict v = BranchChoice.choose(branches, 1);
+    double rate = v.index() < 0 ? pick : v.rate();
+    synchronized (lock) {
+      for (int i = 0; i < rows.size(); i++) {
+        rows.get(i).put("tail_mean", Double.isNaN(v.means()[i]) ? null : v.means()[i]);
+      }
+      Map<String, Object> f = new LinkedHashMap<>();
+      f.put("pick", pick);
+      f.put("branches", rows);
+      f.put("steps", rows.stream().mapToLong(m -> ((Number) m.get("steps")).longValue()).sum());
+      f.put("welch_t", Double.isNaN(v.t()) ? null : v.t());
+      f.put("learning_rate", rate);
+      f.put("note", v.note());
+      audit.append("branches", f);
+      say("rate branches: " + v.note() + "; starting at " + formatRate(rate));
+    }
+    return rate;
+  }
+
+  /**
+   * Runs one throw-away launch fed to {@code rp} until it is done, the trainer exits or a signal
+   * comes; false when a signal came before it launched.
+   */
+  private boolean throwAway(RateProbe rp, String reason) throws IOException,
+      InterruptedException {
     synchronized (lock) {
       probing = rp;
     }
     if (interrupted) {
-      return;
+      return false;
     }
-    launch("rate probe", 0, rp.rate(), null);
+    launch(reason, 0, rp.rate(), null);
     while (true) {
       synchronized (lock) {
         if (rp.done() || interrupted) {
@@ -483,30 +586,8 @@ public final class Supervisor {
       generation++;
       probing = null;
       rp.close();
-      dev.stepwarden.stats.RangeTest.Reading r = rp.reading();
-      double rate = rules.run().learningRate();
-      if (r.found()) {
-        rate = Math.min(rules.limits().maxRate(), Math.max(rules.limits().minRate(), r.pick()));
-        GuardFile.Run run = rules.run();
-        rules = rules.withRun(new GuardFile.Run(run.name(), run.command(), rate, run.workdir(),
-            run.env(), run.stopGrace()));
-        engine = new GuardEngine(rules);
-      }
-      Map<String, Object> f = new LinkedHashMap<>();
-      f.put("steps", rp.steps());
-      f.put("found", r.found());
-      f.put("lower", r.found() ? r.lower() : null);
-      f.put("upper", r.found() ? r.upper() : null);
-      f.put("learning_rate", rate);
-      f.put("note", r.note());
-      f.put("levels", rp.levels());
-      audit.append("probe", f);
-      say("rate probe: " + r.note());
-      if (ledger != null) {
-        ledger.baseline();
-      }
-      lastMetricMillis = clock.millis();
     }
+    return true;
   }
 
   /** Opens the read plan's sources; followed files feed lines from their own threads. */

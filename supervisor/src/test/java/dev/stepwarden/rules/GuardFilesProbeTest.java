@@ -20,6 +20,16 @@ class GuardFilesProbeTest {
   }
 
   @Test
+  void readsTheBranchCheckOfThePickAndRefusesANegativeOne() throws Exception {
+    GuardFile g = parse("run: { command: [sh], learning_rate: 0.1 }\n"
+        + "probe: { from: 1.0e-4, to: 3, branch: 50 }\n");
+    assertThat(g.probe().orElseThrow().branch()).isEqualTo(50);
+    assertThatThrownBy(() -> parse("run: { command: [sh], learning_rate: 0.1 }\n"
+        + "probe: { from: 1.0e-4, to: 3, branch: -1 }\n"))
+        .isInstanceOf(ConfigException.class).hasMessageContaining("branch");
+  }
+
+  @Test
   void fileWithoutProbeHasNone() throws Exception {
     assertThat(parse("run: { command: [sh], learning_rate: 0.1 }\n").probe()).isEmpty();
   }
