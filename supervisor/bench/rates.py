@@ -3,7 +3,9 @@
 Called by rates.sh (which builds the jar); see there for the usage. Everything is measured side by
 side in one run of this script:
 
-1. CPU added per line at each RATE: three process trees run at the same time on the same paced
+1. CPU added per line at each RATE (all rates and the idle night at once, each with its own
+   trees, so that they share one state of the machine): three process trees run at the same time
+   on the same paced
    trainer (JSON lines, one write per line, as `print(..., flush=True)` does): the trainer alone
    (stdout to /dev/null), `trainer | tee FILE`, and `stepwarden run -- trainer` (echoing to
    /dev/null, as tee does). The CPU of every thread of each process is read from
@@ -28,19 +30,21 @@ side in one run of this script:
    the trainer notes the monotonic time at which its SIGTERM handler runs.
 4. Resident memory: VmRSS and VmHWM of the supervisor's JVM at the end of each window.
 """
+import itertools
 import json
 import os
 import signal
 import statistics
 import subprocess
 import sys
-import tempfile
+import threading
 import time
 
 JAR, JVM_OPTS, WORK = sys.argv[1], sys.argv[2].split(), sys.argv[3]
 RATES = [int(r) for r in os.environ.get("RATES", "10,100,500,5000").split(",")]
-WARM = float(os.environ.get("WARM", "10"))
-WINDOW = float(os.environ.get("WINDOW", "20"))
+WARM = float(os.environ.get("WARM", "30"))
+WINDOW = float(os.environ.get("WINDOW", "30"))
+LAT_WARM = float(os.environ.get("LAT_WARM", "10"))
 IDLE = float(os.environ.get("IDLE", "60"))
 LAT_SECONDS = float(os.environ.get("LAT_SECONDS", "30"))
 BAD_EVERY = float(os.environ.get("BAD_EVERY", "0.5"))
@@ -140,13 +144,11 @@ trainer_py = write(os.path.join(WORK, "trainer.py"), TRAINER)
 poller_py = write(os.path.join(WORK, "poller.py"), POLLER)
 steer_yaml = write(os.path.join(WORK, "steer.yaml"), GUARDS.format(action="{ scale: 0.5 }"))
 stop_yaml = write(os.path.join(WORK, "stop.yaml"), GUARDS.format(action="stop"))
-runs = 0
+runs = itertools.count(1)  # one run directory each, also from the threads of the CPU part
 
 
 def java_run(guards, argv, env=None, stdout=subprocess.DEVNULL):
-    global runs
-    runs += 1
-    run_dir = os.path.join(WORK, "run%d" % runs)
+    run_dir = os.path.join(WORK, "run%d" % next(runs))
     # Not --quiet: the run echoes the trainer's lines to its stdout (/dev/null), as tee does.
     cmd = ["java", *JVM_OPTS, "-jar", JAR, "run", "--rules", guards,
            "--run-dir", run_dir, "--", *argv]
@@ -248,12 +250,11 @@ def pct(xs, q):
 
 def reaction(rate):
     """Control-file replacement latencies (ms) at this rate, in one supervised run."""
-    global runs
     marks = os.path.join(WORK, "marks-%d.txt" % rate)
     seen = os.path.join(WORK, "seen-%d.txt" % rate)
     stop_flag = os.path.join(WORK, "stop-%d" % rate)
     env = dict(os.environ, PYTHONUNBUFFERED="1", MARKS=marks, HELPER_DIR=HELPER_DIR)
-    run, run_dir = java_run(steer_yaml, [PY, trainer_py, str(rate), str(LAT_SECONDS + WARM),
+    run, run_dir = java_run(steer_yaml, [PY, trainer_py, str(rate), str(LAT_SECONDS + LAT_WARM),
                                          str(BAD_EVERY), "helper"], env)
     poller = subprocess.Popen([PY, poller_py, os.path.join(run_dir, "control.json"),
                                str(POLL_US), stop_flag, seen])
@@ -280,7 +281,7 @@ def reaction(rate):
         rev = seq_rev.get(step_seq.get(step))
         if rev not in seen_at:
             missed += 1
-        elif b - bads[0][0] < WARM * 1e9:  # the JVM's warm-up: apart, as the rest of a night is warm
+        elif b - bads[0][0] < LAT_WARM * 1e9:  # the JVM's warm-up: apart, as the rest of a night is warm
             warm_lat.append((seen_at[rev] - b) / 1e6)
         else:
             lat.append((seen_at[rev] - b) / 1e6)
@@ -301,6 +302,10 @@ def stop_latency(rate):
     return out
 
 
+def uptime():
+    return open("/proc/loadavg").read().split()[:3]
+
+
 def fmt_ms(xs):
     if not xs:
         return "n=0"
@@ -308,17 +313,29 @@ def fmt_ms(xs):
         statistics.median(xs), pct(xs, 99), max(xs), len(xs))
 
 
-def uptime():
-    return open("/proc/loadavg").read().split()[:3]
-
-
 print("stepwarden, paced trainer (one JSON line per write); load average at start: %s"
       % " ".join(uptime()), flush=True)
+# All rates and the idle night at once (each its own trio of trees): one steady window for all.
+jobs = {rate: None for rate in RATES}
+if IDLE > 0:
+    jobs["idle"] = None
+
+
+def job(key):
+    if key == "idle":
+        jobs[key] = cpu_round(1, WARM + IDLE + 2, "idle")
+    else:
+        jobs[key] = cpu_round(key, WARM + WINDOW + 2, "plain")
+
+
+threads = [threading.Thread(target=job, args=(k,)) for k in jobs]
+for t in threads:
+    t.start()
+for t in threads:
+    t.join()
 rows = []
-idle_proc = None
 for rate in RATES:
-    n, w, (alone, t_tee, tee, t_run, run), rss, hwm, rc = cpu_round(rate, WARM + WINDOW + 2,
-                                                                    "plain")
+    n, w, (alone, t_tee, tee, t_run, run), rss, hwm, rc = jobs[rate]
     rows.append((rate, n, tee, run, t_tee - alone, t_run - alone, hwm))
     print("%5d lines/s, %.1f s window, %d lines: CPU of tee %.3f s, of the run's JVM %.3f s "
           "(%.3f and %.3f s per 10,000 lines, ratio %.2f); the trainer itself: alone %.3f s, "
@@ -326,13 +343,13 @@ for rate in RATES:
           % (rate, w, n, tee, run, tee / n * 1e4, run / n * 1e4,
              run / tee if tee > 0 else float("nan"), alone, t_tee - alone, t_run - alone, rss,
              hwm, rc), flush=True)
-
 idle_per_hour = float("nan")
 if IDLE > 0:
-    _, w, (_a, _tt, _tee, _tr, run), rss, hwm, rc = cpu_round(1, WARM + IDLE + 2, "idle")
+    _, w, (_a, _tt, _tee, _tr, run), rss, hwm, rc = jobs["idle"]
     idle_per_hour = run / w * 3600
     print("idle night: %.1f s window, the run's JVM used %.3f s CPU = %.2f s per hour; "
           "RSS %.0f MB" % (w, run, idle_per_hour, rss), flush=True)
+print("load average after the CPU part: %s" % " ".join(uptime()), flush=True)
 
 react = {}
 for rate in ((200, 5000) if LAT_SECONDS > 0 else ()):
@@ -341,7 +358,7 @@ for rate in ((200, 5000) if LAT_SECONDS > 0 else ()):
     react[rate] = (lat, stops)
     print("%5d lines/s: NaN line -> control file replaced: %s; (first %.0f s: %s); "
           "unmatched %d; NaN line -> SIGTERM of a stop: %s"
-          % (rate, fmt_ms(lat), WARM, fmt_ms(warm_lat), missed, fmt_ms(stops)), flush=True)
+          % (rate, fmt_ms(lat), LAT_WARM, fmt_ms(warm_lat), missed, fmt_ms(stops)), flush=True)
 
 print()
 print("load average at end: %s" % " ".join(uptime()))
