@@ -54,6 +54,15 @@ public final class AuditLog implements Closeable {
   }
 
   /**
+   * Appends one typed record and forces it to disk.
+   *
+   * @return the record's sequence number
+   */
+  public long append(AuditRecord record) throws IOException {
+    return append(record.type(), record.fields());
+  }
+
+  /**
    * Appends one record of {@code type} with {@code fields} and forces it to disk.
    *
    * @return the record's sequence number

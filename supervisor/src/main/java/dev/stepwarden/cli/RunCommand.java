@@ -11,6 +11,8 @@ import dev.stepwarden.supervise.RunDirectory;
 import dev.stepwarden.supervise.RunOutcome;
 import dev.stepwarden.supervise.Signals;
 import dev.stepwarden.supervise.RunObserver;
+import dev.stepwarden.supervise.Preemption;
+import dev.stepwarden.supervise.RunOptions;
 import dev.stepwarden.supervise.Supervisor;
 import dev.stepwarden.telemetry.MetricsServer;
 import dev.stepwarden.telemetry.RunMeters;
@@ -104,7 +106,7 @@ final class RunCommand implements Callable<Integer> {
       err.println("stepwarden: --resume continues with the run's own guard file; drop --set");
       return ExitCodes.USAGE;
     }
-    Supervisor.Preemption preemption;
+    Preemption preemption;
     try {
       preemption = preemption(onPreempt, preemptWait);
     } catch (IllegalArgumentException e) {
@@ -155,7 +157,7 @@ final class RunCommand implements Callable<Integer> {
       return ExitCodes.CONFIG;
     }
     try (Telemetry t = Telemetry.open(metricsPort, g, err)) {
-      Supervisor.Options o = new Supervisor.Options(runDir, quiet, null, null)
+      RunOptions o = new RunOptions(runDir, quiet, null, null)
           .withPreemption(preemption).withCopyVault(copyVault).withObserver(t.observer());
       return supervise(new Supervisor(g, o), spec.commandLine().getOut(), err).exitCode();
     } catch (IOException e) {
@@ -197,7 +199,7 @@ final class RunCommand implements Callable<Integer> {
     }
   }
 
-  private int resume(PrintWriter err, Supervisor.Preemption preemption) {
+  private int resume(PrintWriter err, Preemption preemption) {
     if (runDir != null || (command != null && !command.isEmpty())) {
       err.println("stepwarden: --resume continues the run where it is, with its own command;"
           + " drop --run-dir and the command after '--'");
@@ -223,7 +225,7 @@ final class RunCommand implements Callable<Integer> {
     try (Telemetry t = Telemetry.open(metricsPort, g, err)) {
       Supervisor s;
       try {
-        s = Supervisor.resume(resume, g, new Supervisor.Options(resume, quiet, null, null)
+        s = Supervisor.resume(resume, g, new RunOptions(resume, quiet, null, null)
             .withPreemption(preemption).withCopyVault(copyVault).withObserver(t.observer()));
       } catch (IOException | IllegalStateException e) {
         err.println("stepwarden: cannot resume: " + e.getMessage());
@@ -236,15 +238,15 @@ final class RunCommand implements Callable<Integer> {
     }
   }
 
-  static Supervisor.Preemption preemption(String how, String wait) {
+  static Preemption preemption(String how, String wait) {
     Duration d = duration(wait, "--preempt-wait");
     if (how.equals("control-file")) {
-      return new Supervisor.Preemption(null, d);
+      return new Preemption(null, d);
     }
     if (how.startsWith("signal:")) {
       String name = how.substring("signal:".length()).toUpperCase(Locale.ROOT);
       name = name.startsWith("SIG") ? name.substring(3) : name;
-      return new Supervisor.Preemption(name, d);
+      return new Preemption(name, d);
     }
     throw new IllegalArgumentException("--on-preempt " + how + ": give control-file or"
         + " signal:NAME (e.g. signal:USR1)");
@@ -257,7 +259,7 @@ final class RunCommand implements Callable<Integer> {
   /** Runs a supervisor with a shutdown hook for SIGINT/SIGTERM; prints the short summary. */
   static Ran supervise(GuardFile g, Path runDir, boolean quiet, PrintWriter out,
       PrintWriter err) {
-    return supervise(new Supervisor(g, new Supervisor.Options(runDir, quiet, null, null)), out,
+    return supervise(new Supervisor(g, new RunOptions(runDir, quiet, null, null)), out,
         err);
   }
 

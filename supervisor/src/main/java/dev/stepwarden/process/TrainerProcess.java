@@ -76,6 +76,17 @@ import java.util.concurrent.atomic.AtomicReference;
  * died) is the kernel's job via PID 1 or a subreaper: in a container, run with an init
  * ({@code docker run --init}) or orphans stay zombies. Zombies count as gone here.
  *
+ * <p><b>Descendants that leave the group.</b> A worker that calls {@code setsid()} is no longer
+ * reached by the group signal, and once its parent exits it is re-parented to PID 1, so
+ * {@code /proc} no longer ties it to the trainer. The launcher thread therefore notes the
+ * trainer's descendants every 250 ms while it waits ({@link ProcessHandle#descendants()}, a walk
+ * of {@code /proc} by parent pid) and stop signals every noted one still alive (the handle's start
+ * time guards against a reused pid). Making the supervisor a child subreaper
+ * ({@code prctl(PR_SET_CHILD_SUBREAPER)}) would catch even a worker that forks, leaves and loses
+ * its parent within those 250 ms, but Java 17 cannot call prctl without a native library (JNI)
+ * or the foreign-function API (an incubator module in 17, which the build would have to enable
+ * and whose use warns): the tracking is the gap we accept and name here.
+ *
  * <p><b>Fallback</b> (no {@code setsid}): the trainer shares the supervisor's group, which must
  * never be signalled, so stop walks {@link ProcessHandle#descendants()} instead, refreshed while it
  * waits. It cannot reach a grandchild that was already orphaned. Without {@code setpriv} the trainer
@@ -91,6 +102,8 @@ public final class TrainerProcess implements AutoCloseable {
   private static final Duration KILL_WAIT = Duration.ofSeconds(5);
   private static final Duration PUMP_WAIT = Duration.ofSeconds(2);
   private static final Duration GROUP_CONFIRM_WAIT = Duration.ofSeconds(2);
+  /** How often the launcher thread notes the trainer's descendants (a /proc walk each). */
+  private static final Duration TRACK_EVERY = Duration.ofMillis(250);
   private static final Set<TrainerProcess> LIVE = ConcurrentHashMap.newKeySet();
   private static final AtomicInteger SEQUENCE = new AtomicInteger();
   /** Set by {@link #hurryAll}: the rest of the grace is skipped, KILL follows at once. */
@@ -117,12 +130,20 @@ public final class TrainerProcess implements AutoCloseable {
   private final LinePump err;
   private final AtomicReference<Throwable> firstFailure = new AtomicReference<>();
   private final Object stopLock = new Object();
+  /**
+   * Every descendant seen while the trainer lived, sampled by the launcher thread: a worker that
+   * called setsid() has left the group, and once its parent is gone {@code /proc} no longer
+   * links it to the trainer, so it is remembered here to be stopped with the tree.
+   */
+  private final Set<ProcessHandle> known;
   private volatile StopResult stopResult;
   private boolean stopInterrupted; // guarded by stopLock
 
   private TrainerProcess(LaunchSpec spec, LineListener listener, ProcessTools tools,
-      List<String> launchedCommand, Process process, OutputStream outLog, OutputStream errLog) {
+      List<String> launchedCommand, Process process, OutputStream outLog, OutputStream errLog,
+      Set<ProcessHandle> known) {
     this.spec = spec;
+    this.known = known;
     this.listener = listener;
     this.tools = tools;
     this.launchedCommand = List.copyOf(launchedCommand);
@@ -161,16 +182,19 @@ public final class TrainerProcess implements AutoCloseable {
     OutputStream outLog = null;
     OutputStream errLog = null;
     Process p;
+    Set<ProcessHandle> known = ConcurrentHashMap.newKeySet();
     try {
       outLog = openLog(spec.stdoutLog(), "stdout");
       errLog = openLog(spec.stderrLog(), "stderr");
-      p = spawnOnLauncherThread(pb, spec, "stepwarden-launcher-" + SEQUENCE.incrementAndGet());
+      p = spawnOnLauncherThread(pb, spec, "stepwarden-launcher-" + SEQUENCE.incrementAndGet(),
+          known);
     } catch (IOException | RuntimeException e) {
       closeQuietly(outLog);
       closeQuietly(errLog);
       throw e;
     }
-    TrainerProcess tp = new TrainerProcess(spec, listener, tools, argv, p, outLog, errLog);
+    TrainerProcess tp = new TrainerProcess(spec, listener, tools, argv, p, outLog, errLog,
+        known);
     LIVE.add(tp);
     p.onExit().thenRun(tp::forgetIfFinished);
     return tp;
@@ -231,6 +255,14 @@ public final class TrainerProcess implements AutoCloseable {
   public void whenDrained(Runnable action) {
     CompletableFuture.allOf(process.onExit(), out.finished(), err.finished())
         .thenRun(action);
+  }
+
+  /**
+   * The trainer's own exit code once the trainer process itself has exited, whether or not its
+   * output has drained (a leftover child may hold the pipe open); empty while it runs.
+   */
+  public OptionalInt exitedItself() {
+    return process.isAlive() ? OptionalInt.empty() : OptionalInt.of(process.exitValue());
   }
 
   /** Like {@link #waitFor()} but gives up after {@code timeout}: empty when still running. */
@@ -327,8 +359,8 @@ public final class TrainerProcess implements AutoCloseable {
    * Forks on a fresh thread that stays alive until the trainer exits: that thread is the trainer's
    * parent for PR_SET_PDEATHSIG (see the design note).
    */
-  private static Process spawnOnLauncherThread(ProcessBuilder pb, LaunchSpec spec, String name)
-      throws IOException {
+  private static Process spawnOnLauncherThread(ProcessBuilder pb, LaunchSpec spec, String name,
+      Set<ProcessHandle> known) throws IOException {
     CompletableFuture<Process> started = new CompletableFuture<>();
     Thread launcher = new Thread(() -> {
       Process p;
@@ -341,8 +373,10 @@ public final class TrainerProcess implements AutoCloseable {
       started.complete(p);
       while (true) {
         try {
-          p.waitFor();
-          return;
+          if (p.waitFor(TRACK_EVERY.toMillis(), TimeUnit.MILLISECONDS)) {
+            return;
+          }
+          p.descendants().forEach(known::add);
         } catch (InterruptedException e) {
           // Nobody should interrupt us; leaving early would SIGKILL the trainer.
         }
@@ -449,10 +483,21 @@ public final class TrainerProcess implements AutoCloseable {
 
   // ---- stop ----
 
-  /** Adds the trainer's current descendants (only reachable while the trainer lives). */
+  /**
+   * Adds the trainer's current descendants (reachable while the trainer lives) and every
+   * descendant noted earlier that still runs (a setsid() worker orphaned since).
+   */
   private void collectTree(Set<ProcessHandle> tree) {
     if (process.isAlive()) {
-      process.descendants().forEach(tree::add);
+      process.descendants().forEach(h -> {
+        tree.add(h);
+        known.add(h);
+      });
+    }
+    for (ProcessHandle h : known) {
+      if (h.isAlive()) {
+        tree.add(h);
+      }
     }
   }
 
@@ -545,7 +590,8 @@ public final class TrainerProcess implements AutoCloseable {
   // ---- bookkeeping ----
 
   private void forgetIfFinished() {
-    if (!groupMode || !ProcessGroups.hasRunningMember(pid)) {
+    if ((!groupMode || !ProcessGroups.hasRunningMember(pid))
+        && known.stream().noneMatch(ProcessGroups::isRunning)) {
       LIVE.remove(this);
     }
   }

@@ -6,6 +6,7 @@ import dev.stepwarden.rules.GuardFiles;
 import dev.stepwarden.supervise.RunDirectory;
 import dev.stepwarden.supervise.RunObserver;
 import dev.stepwarden.supervise.RunOutcome;
+import dev.stepwarden.supervise.RunOptions;
 import dev.stepwarden.supervise.Supervisor;
 import dev.stepwarden.telemetry.RunMeters;
 import java.io.IOException;
@@ -240,7 +241,7 @@ public final class QueuedRun implements Job {
             Night.offThread("stepwarden-median", () -> s.interrupt(v.summary()));
           }));
     }
-    Supervisor.Options options = new Supervisor.Options(dir, true, null,
+    RunOptions options = new RunOptions(dir, true, null,
         night.options.console(), all(observers));
     Supervisor s;
     if (resume) {

@@ -1,6 +1,5 @@
 package dev.stepwarden.supervise;
 
-import dev.stepwarden.metrics.MetricsSources;
 import dev.stepwarden.metrics.Sample;
 import java.io.Closeable;
 import java.io.IOException;
@@ -61,10 +60,22 @@ final class NormalizedWriter implements Closeable {
   }
 
   /**
-   * Appends {@code s} at learning rate {@code rate}; numbers of {@code sources}' source
-   * {@code source} that the line printed as valid JSON are copied as printed.
+   * The text a line printed for each of its series, as handed over by the sample path (the
+   * writer reads it; it never reaches back into the intake that parsed the line).
    */
-  void write(Sample s, double rate, MetricsSources sources, int source) throws IOException {
+  interface Printed {
+    /** The printed length of {@code series}' number when it was valid JSON, else -1. */
+    int length(String series);
+
+    /** Copies that text into {@code out} at {@code at}. */
+    void copy(String series, byte[] out, int at);
+  }
+
+  /**
+   * Appends {@code s} at learning rate {@code rate}; numbers {@code printed} holds (those the
+   * line printed as valid JSON) are copied as printed; {@code printed} may be null.
+   */
+  void write(Sample s, double rate, Printed printed) throws IOException {
     put(STEP);
     putStep(s.step());
     double epoch = s.epoch();
@@ -102,11 +113,11 @@ final class NormalizedWriter implements Closeable {
         put(Double.isNaN(v) ? NAN : v > 0 ? INF : NEG_INF);
         continue;
       }
-      int printed = sources == null ? -1 : sources.printedLength(source, name);
-      if (printed >= 0) {
-        ensure(printed);
-        sources.copyPrinted(source, name, buf, len);
-        len += printed;
+      int printedLen = printed == null ? -1 : printed.length(name);
+      if (printedLen >= 0) {
+        ensure(printedLen);
+        printed.copy(name, buf, len);
+        len += printedLen;
       } else {
         putDouble(v);
       }

@@ -22,6 +22,9 @@ public interface RunObserver {
   /** Line counters after each metric line: read, carried metrics, ignored. */
   default void onLines(long lines, long metricLines, long ignored) {}
 
+  /** A warning about the run's input was recorded (already audited and printed). */
+  default void onWarning(String message) {}
+
   /** The run ended. */
   default void onEnd(Supervisor.Result result) {}
 }

@@ -3,6 +3,7 @@ package dev.stepwarden.bench;
 import dev.stepwarden.audit.AuditReader;
 import dev.stepwarden.rules.GuardFile;
 import dev.stepwarden.rules.GuardFiles;
+import dev.stepwarden.supervise.RunOptions;
 import dev.stepwarden.supervise.Supervisor;
 import java.io.IOException;
 import java.io.OutputStream;
@@ -219,7 +220,7 @@ public final class ControlQuality {
         plain || t.restart() ? Optional.empty() : base.probe());
     PrintStream quiet = new PrintStream(OutputStream.nullOutputStream(), true,
         StandardCharsets.UTF_8);
-    Supervisor.Options o = new Supervisor.Options(runDir, true, null, quiet);
+    RunOptions o = new RunOptions(runDir, true, null, quiet);
     Supervisor.Result res = new Supervisor(g, o).run();
     return read(run, res.runDir(), wd, res.outcome().name());
   }

@@ -68,10 +68,12 @@ class SupervisedNightEndToEndTest {
       assertThat(r.get("type")).isEqualTo("outcome");
       assertThat(((Number) r.get("decision_seq")).longValue()).isEqualTo(seq);
     });
+    // The trainer confirms the live change it applied: this one, or a later one that replaced
+    // it before the trainer's next poll (a loaded machine delivers the lines in bursts).
     assertThat(audit.records()).anySatisfy(r -> {
       assertThat(r.get("type")).isEqualTo("confirmed");
-      assertThat(r.get("decision_seq")).isInstanceOf(Number.class);
-      assertThat(((Number) r.get("decision_seq")).longValue()).isEqualTo(seq);
+      assertThat(r.get("for")).isEqualTo("live change");
+      assertThat(((Number) r.get("decision_seq")).longValue()).isGreaterThanOrEqualTo(seq);
     });
     assertThat(Files.readString(runDir.resolve("control.json"))).contains("\"guard\":\"flat-validation\"");
     Map<String, Object> end = audit.records().get(audit.records().size() - 1);

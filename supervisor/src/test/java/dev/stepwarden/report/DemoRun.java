@@ -2,6 +2,7 @@ package dev.stepwarden.report;
 
 import dev.stepwarden.rules.GuardFile;
 import dev.stepwarden.rules.GuardFiles;
+import dev.stepwarden.supervise.RunOptions;
 import dev.stepwarden.supervise.Supervisor;
 import java.io.InputStream;
 import java.io.OutputStream;
@@ -45,7 +46,7 @@ public final class DemoRun {
       g = g.withRun(new GuardFile.Run(g.run().name(), cmd, g.run().learningRate(), work,
           g.run().env(), g.run().stopGrace()));
       PrintStream quiet = new PrintStream(OutputStream.nullOutputStream());
-      result = new Supervisor(g, new Supervisor.Options(d, true, null, quiet)).run();
+      result = new Supervisor(g, new RunOptions(d, true, null, quiet)).run();
       dir = d;
     }
     return dir;

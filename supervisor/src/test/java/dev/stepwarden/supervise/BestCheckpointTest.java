@@ -37,7 +37,7 @@ class BestCheckpointTest {
         + "  workdir: " + tmp + "\n"
         + "checkpoints: { watch: 'ckpt/epoch-*.pt', keep: 10 }\n");
     Path runDir = tmp.resolve("run");
-    Supervisor.Result r = new Supervisor(GuardFiles.load(rules), new Supervisor.Options(runDir,
+    Supervisor.Result r = new Supervisor(GuardFiles.load(rules), new RunOptions(runDir,
         true, null, new PrintStream(new ByteArrayOutputStream(), true, StandardCharsets.UTF_8)))
         .run();
 

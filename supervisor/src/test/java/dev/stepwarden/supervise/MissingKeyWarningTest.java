@@ -36,7 +36,7 @@ class MissingKeyWarningTest {
         + "read: { series: { train: loss, validation: valid_loss } }\n");
     ByteArrayOutputStream console = new ByteArrayOutputStream();
     Path runDir = tmp.resolve("run");
-    Supervisor.Result r = new Supervisor(GuardFiles.load(rules), new Supervisor.Options(runDir,
+    Supervisor.Result r = new Supervisor(GuardFiles.load(rules), new RunOptions(runDir,
         true, null, new PrintStream(console, true, StandardCharsets.UTF_8))).run();
 
     assertThat(r.outcome()).isEqualTo(RunOutcome.FINISHED);

@@ -54,7 +54,7 @@ final class Night {
 
   Supervisor.Result run(GuardFile g) throws Exception {
     ByteArrayOutputStream console = new ByteArrayOutputStream();
-    Supervisor s = new Supervisor(g, new Supervisor.Options(runDir, true, null,
+    Supervisor s = new Supervisor(g, new RunOptions(runDir, true, null,
         new PrintStream(console, true, StandardCharsets.UTF_8)));
     return s.run();
   }

@@ -31,7 +31,7 @@ class NormalizedWriterTest {
     Path f = Files.createFile(dir.resolve("m" + System.nanoTime() + ".jsonl"));
     try (NormalizedWriter w = NormalizedWriter.append(f)) {
       for (Sample s : samples) {
-        w.write(s, 0.001, null, 0);
+        w.write(s, 0.001, null);
       }
     }
     return Files.readAllLines(f, StandardCharsets.UTF_8);
@@ -85,7 +85,7 @@ class NormalizedWriterTest {
     Path f = Files.createTempFile("normalized", ".jsonl");
     try {
       try (NormalizedWriter w = NormalizedWriter.append(f)) {
-        w.write(sample(step, epoch, "train", value), 3e-4, null, 0);
+        w.write(sample(step, epoch, "train", value), 3e-4, null);
       }
       JsonNode n = JSON.readTree(Files.readString(f, StandardCharsets.UTF_8));
       assertThat(n.get("step").asLong()).isEqualTo(step);
@@ -116,7 +116,7 @@ class NormalizedWriterTest {
     try {
       try (NormalizedWriter w = NormalizedWriter.append(f)) {
         for (long st : steps) {
-          w.write(sample(st, Double.NaN, "train", 1.0), 0.1, null, 0);
+          w.write(sample(st, Double.NaN, "train", 1.0), 0.1, null);
         }
       }
       List<String> lines = Files.readAllLines(f, StandardCharsets.UTF_8);
@@ -143,7 +143,7 @@ class NormalizedWriterTest {
     try {
       try (NormalizedWriter w = NormalizedWriter.append(f)) {
         for (Sample x : s) {
-          w.write(x, 0.001, null, 0);
+          w.write(x, 0.001, null);
         }
       }
       lines = Files.readAllLines(f, StandardCharsets.UTF_8);
@@ -190,7 +190,7 @@ class NormalizedWriterTest {
     Sample s = sources.accept(0, line, 0, line.length, 99L, false).sample();
     Path f = Files.createFile(dir.resolve("printed.jsonl"));
     try (NormalizedWriter w = NormalizedWriter.append(f)) {
-      w.write(s, 0.1, sources, 0);
+      w.write(s, 0.1, SamplePath.printedOf(sources, 0));
     }
     assertThat(Files.readString(f, StandardCharsets.UTF_8))
         .isEqualTo("{\"step\":5,\"t\":99,\"lr\":0.1,\"train\":1.50E-3}\n");

@@ -5,6 +5,7 @@ import static org.assertj.core.api.Assertions.assertThat;
 import dev.stepwarden.rules.GuardFile;
 import dev.stepwarden.rules.GuardFiles;
 import dev.stepwarden.supervise.RunOutcome;
+import dev.stepwarden.supervise.RunOptions;
 import dev.stepwarden.supervise.Supervisor;
 import io.micrometer.prometheusmetrics.PrometheusMeterRegistry;
 import java.io.ByteArrayOutputStream;
@@ -51,7 +52,7 @@ class MetricsEndpointTest {
     HttpClient http = HttpClient.newHttpClient();
     ExecutorService ex = Executors.newSingleThreadExecutor();
     try (MetricsServer server = MetricsServer.start(registry, "127.0.0.1", 0)) {
-      Supervisor s = new Supervisor(g, new Supervisor.Options(tmp.resolve("run"), true, null,
+      Supervisor s = new Supervisor(g, new RunOptions(tmp.resolve("run"), true, null,
           new PrintStream(new ByteArrayOutputStream(), true, StandardCharsets.UTF_8), meters));
       Future<Supervisor.Result> run = ex.submit(s::run);
       // A scrape is a snapshot: the meters follow each line (the series value first, then the

@@ -5,15 +5,15 @@ import java.time.Instant;
 import java.time.ZoneId;
 import java.time.ZoneOffset;
 
-/** A clock the test moves by hand. */
-final class MutableClock extends Clock {
+/** A clock the test moves by hand (shared by the tests of several packages). */
+public final class MutableClock extends Clock {
   private volatile long millis;
 
-  MutableClock(long millis) {
+  public MutableClock(long millis) {
     this.millis = millis;
   }
 
-  void advanceMillis(long d) {
+  public void advanceMillis(long d) {
     millis += d;
   }
 
