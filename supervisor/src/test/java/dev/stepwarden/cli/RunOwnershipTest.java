@@ -24,7 +24,9 @@ class RunOwnershipTest {
         + "    print('step=%d loss=1.0' % i, flush=True)\n    time.sleep(0.1)\n");
     Path rules = tmp.resolve("guards.yaml");
     Files.writeString(rules, "run:\n  name: long\n  learning_rate: 0.1\n  stop_grace: 2s\n"
-        + "  command: [python3, -u, slow.py]\n"
+        // absolute: the second run below starts from this JVM's folder, where a relative name
+        // would be refused first by the missing-script check (exit 78)
+        + "  command: [python3, -u, \"" + tmp.resolve("slow.py") + "\"]\n"
         + "read:\n  format: pairs\n  series: { train: loss }\n"
         + "limits:\n  learning_rate: { min: 1.0e-6, max: 1.0 }\n");
     Path runDir = tmp.resolve("run");
