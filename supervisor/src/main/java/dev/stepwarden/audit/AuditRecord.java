@@ -266,8 +266,9 @@ public sealed interface AuditRecord {
   }
 
   /** A checkpoint settled and was kept (or judged). */
-  record Checkpoint(String path, long step, long size, String sha256, Object train,
-      Object validation, boolean healthy, String vault, String vaultBy) implements AuditRecord {
+  record Checkpoint(String path, long step, String stepFrom, long size, String sha256,
+      Object train, Object validation, boolean healthy, String vault, String vaultBy)
+      implements AuditRecord {
     @Override
     public String type() {
       return "checkpoint";
@@ -275,8 +276,8 @@ public sealed interface AuditRecord {
 
     @Override
     public Map<String, Object> fields() {
-      return new Fields().put("path", path).put("step", step).put("size", size)
-          .put("sha256", sha256).put("train", train).put("validation", validation)
+      return new Fields().put("path", path).put("step", step).put("step_from", stepFrom)
+          .put("size", size).put("sha256", sha256).put("train", train).put("validation", validation)
           .put("healthy", healthy).put("vault", vault).put("vault_by", vaultBy).map;
     }
   }

@@ -33,15 +33,21 @@ import java.util.stream.Stream;
  *       {@code ckpt/*.pt}), never the whole working directory, which may hold a data set of
  *       millions of files; and only as deep as the glob reaches ({@code **} goes up to 16
  *       levels). Symbolic links to folders are not followed.
- *   <li><b>When a file counts.</b> Once its size and modification time have stayed the same for
- *       the settle time, measured between scans: a trainer still writing must not give us a rewind
- *       target. A rewrite of the same path (a trainer overwriting {@code last.pt}) is a new entry.
+ *   <li><b>When a file counts.</b> Never while a process of the trainer's tree holds it open
+ *       for writing ({@link WriterProbe}); then once its size and modification time have stayed
+ *       the same for a window that grows with the time it kept changing and with its size
+ *       ({@link #window}), measured between scans: a trainer still writing, or stalled between
+ *       chunks, must not give us a rewind target. A rewrite of the same path (a trainer
+ *       overwriting {@code last.pt}) is a new entry. A file another live run's glob also
+ *       matches ({@link WatchClaims}) is taken only when this run's trainer was seen writing it.
  *   <li><b>Its step.</b> The step the trainer had reported when the file <em>first appeared</em>,
  *       not when it settled, so "written before the onset" stays true for a large file that took a
- *       while. When the file name carries a number that lies between the step of the previous scan
- *       and the current one (a file named for its step), that number is taken: it is exact.
+ *       while. A number the file name labels as a step ({@code step-120}) that lies between the
+ *       previous scan's step and one scan interval past the current one is taken instead; an
+ *       epoch or a bare number never is. {@link Entry#stepFrom()} says which.
  *   <li><b>Baseline.</b> Files present before the trainer starts (an earlier run's leftovers) are
- *       ignored until they change: their step is unknown.
+ *       ignored until they change: their step is unknown. So is a file whose time is older than
+ *       the run's first launch ({@link #notBefore}), wherever it came from.
  *   <li><b>Vault.</b> Each healthy entry is kept in the {@link CheckpointVault} the moment it
  *       settles; its hash is taken of the vault copy, the bytes a rewind will use. A file the
  *       trainer replaced between the settle check and the link (or copy) is not kept under the
@@ -56,7 +62,20 @@ import java.util.stream.Stream;
  * pump thread may read the entries for the state file.
  */
 public final class CheckpointLedger {
-  private static final Pattern LAST_NUMBER = Pattern.compile("(\\d+)(?!.*\\d)");
+  /**
+   * A number the file name labels as a step ({@code step-120}, {@code iter_3000},
+   * {@code global_step=40}); an epoch, a counter or a version is never taken as a step.
+   */
+  private static final Pattern STEP_IN_NAME = Pattern.compile(
+      "(?i)(?<![a-z])(?:global_?)?(?:steps?|iter|iteration|it)[-_=]?(\\d{1,18})(?!\\d)");
+  /** The settle window's cap: however large the file, an hour's stall never passes silently. */
+  static final long MAX_WINDOW_MILLIS = 120_000;
+  /** The window grows by a millisecond per MiB (about 1 s per GiB): common practice, no source. */
+  static final long BYTES_PER_WINDOW_MILLI = 1 << 20;
+  /** Where an entry's step came from, for the audit. */
+  public static final String STEP_FROM_NAME = "file name";
+  public static final String STEP_FROM_TRAINER = "trainer's step when the file appeared";
+  public static final String STEP_FROM_NONE = "no step reported yet";
 
   /**
    * One settled checkpoint.
@@ -72,10 +91,19 @@ public final class CheckpointLedger {
    *     branch of the run that a rewind left behind) or {@code damaged} (its bytes changed)
    */
   public record Entry(Path path, long step, long wallMillis, long size, String sha256,
-      double train, double validation, boolean healthy, Path vault, String state) {
+      double train, double validation, boolean healthy, Path vault, String state,
+      String stepFrom) {
     public Entry {
       Objects.requireNonNull(path, "path");
       state = state == null ? OK : state;
+      stepFrom = stepFrom == null ? STEP_FROM_TRAINER : stepFrom;
+    }
+
+    /** An entry whose step is the trainer's step when the file appeared. */
+    public Entry(Path path, long step, long wallMillis, long size, String sha256,
+        double train, double validation, boolean healthy, Path vault, String state) {
+      this(path, step, wallMillis, size, sha256, train, validation, healthy, vault, state,
+          STEP_FROM_TRAINER);
     }
 
     /** The file a rewind would resume from: the vault copy when there is one. */
@@ -85,7 +113,7 @@ public final class CheckpointLedger {
 
     Entry with(Path newVault, String newState) {
       return new Entry(path, step, wallMillis, size, sha256, train, validation, healthy,
-          newVault, newState);
+          newVault, newState, stepFrom);
     }
   }
 
@@ -114,6 +142,9 @@ public final class CheckpointLedger {
   private final List<Notice> notices = new ArrayList<>();
   private long previousScanStep = -1;
   private Path inUse;
+  private WriterProbe writers = WriterProbe.NONE;
+  private WatchClaims claims;
+  private long notBeforeMillis = Long.MIN_VALUE;
   /**
    * Test seam: runs between the settle check and the vault's link or copy, the window in which a
    * trainer can rename a newer file onto the path. Tests in this package set it; nothing else does.
@@ -125,17 +156,22 @@ public final class CheckpointLedger {
     long mtime;
     long unchangedSince;
     final long step;
+    final String stepFrom;
     final long firstMillis;
+    boolean sawOurWriter;
+    /** Another live run whose glob matched the file while it was pending, if any. */
+    WatchClaims.Other sharedWith;
     final double train;
     final double validation;
     final boolean healthy;
 
-    Sighting(long size, long mtime, long now, long step, double train, double validation,
+    Sighting(long size, long mtime, long now, Step step, double train, double validation,
         boolean healthy) {
       this.size = size;
       this.mtime = mtime;
       this.unchangedSince = now;
-      this.step = step;
+      this.step = step.step();
+      this.stepFrom = step.from();
       this.firstMillis = now;
       this.train = train;
       this.validation = validation;
@@ -155,10 +191,13 @@ public final class CheckpointLedger {
    * @param settleMillis how long a file must stay unchanged before it counts
    */
   public CheckpointLedger(Path workdir, String glob, CheckpointVault vault, long settleMillis) {
-    this.root = workdir.toAbsolutePath().normalize();
     this.glob = glob.replace('\\', '/');
-    this.matcher = FileSystems.getDefault().getPathMatcher("glob:" + this.glob);
-    String[] parts = this.glob.split("/");
+    // An absolute glob ({run_dir}/ckpt/*.pt once filled) is matched below the file system root.
+    String relative = this.glob.replaceFirst("^/+", "");
+    this.root = relative.length() < this.glob.length() ? Path.of("/")
+        : workdir.toAbsolutePath().normalize();
+    this.matcher = FileSystems.getDefault().getPathMatcher("glob:" + relative);
+    String[] parts = relative.split("/");
     int fixed = 0;
     while (fixed < parts.length - 1 && !hasGlobMeta(parts[fixed])) {
       fixed++;
@@ -177,6 +216,16 @@ public final class CheckpointLedger {
     this.settleMillis = settleMillis;
   }
 
+  /**
+   * Fills {@code {run_dir}} in a {@code checkpoints.watch} glob with the run directory, so runs of
+   * one sweep can each watch a folder of their own. The path is put in as it is: a run directory
+   * whose name holds glob characters ({@code * ? [ ] { }}) is matched as a pattern.
+   */
+  public static String fillRunDir(String watch, Path runDir) {
+    return watch.replace("{run_dir}", runDir.toAbsolutePath().normalize().toString()
+        .replace('\\', '/'));
+  }
+
   public synchronized String glob() {
     return glob;
   }
@@ -188,6 +237,46 @@ public final class CheckpointLedger {
 
   public synchronized Optional<CheckpointVault> vault() {
     return Optional.ofNullable(vault);
+  }
+
+  /**
+   * Who may still be writing: a file the probe reports open for writing is never taken, however
+   * long it stays unchanged (a trainer stalled between two chunks of a large checkpoint).
+   */
+  public synchronized void watchWriters(WriterProbe probe) {
+    writers = Objects.requireNonNull(probe, "probe");
+  }
+
+  /**
+   * The live runs' claims: a file another live run's glob also matches is taken only when a
+   * process of this run's trainer was seen writing it (else its owner is unknown: never ours).
+   */
+  public synchronized void claims(WatchClaims c) {
+    claims = c;
+  }
+
+  /** The glob as an absolute pattern (for the claims of other runs). */
+  public synchronized String absoluteGlob() {
+    return glob.startsWith("/") ? glob : root.toString().replace('\\', '/') + "/" + glob;
+  }
+
+  /**
+   * Files last modified before {@code wallMillis} (the run's first launch) are never taken: they
+   * were not written by this run (a file moved or copied in keeps its old time).
+   */
+  public synchronized void notBefore(long wallMillis) {
+    notBeforeMillis = wallMillis;
+  }
+
+  /**
+   * How long a file must stay unchanged before it counts: the configured settle time, or longer
+   * for a file that took a while to appear (twice the time it kept changing while watched) and
+   * for a large one (about 1 s per GiB): slow storage stalls longer between chunks. Capped at
+   * {@link #MAX_WINDOW_MILLIS}.
+   */
+  static long window(long settleMillis, long size, long growingMillis) {
+    long grown = 2 * Math.max(0, growingMillis) + Math.max(0, size) / BYTES_PER_WINDOW_MILLI;
+    return Math.max(settleMillis, Math.min(MAX_WINDOW_MILLIS, grown));
   }
 
   /** Ignores every matching file present now until it changes (an earlier run's leftovers). */
@@ -213,6 +302,7 @@ public final class CheckpointLedger {
   public synchronized List<Entry> scan(long step, double train, double validation,
       boolean healthy, long wallMillis, boolean forceSettle) throws IOException {
     List<Entry> fresh = new ArrayList<>();
+    Map<Object, Boolean> writing = null;
     for (Path p : find()) {
       long[] now = stamp(p);
       if (now == null) {
@@ -223,12 +313,19 @@ public final class CheckpointLedger {
         continue;
       }
       Sighting s = pending.get(p);
+      if (s == null && now[1] < notBeforeMillis) {
+        settled.put(p, now); // older than this run: not ours, its step unknown
+        continue;
+      }
       if (s == null) {
         if (done != null) {
           noticeInPlaceRewrite(p, now);
         }
         s = new Sighting(now[0], now[1], wallMillis, stepFor(p, step), train, validation,
             healthy);
+        if (claims != null) { // whose could it be, while the other runs are still alive
+          s.sharedWith = claims.sharedWith(p, wallMillis).orElse(null);
+        }
         pending.put(p, s);
         if (!forceSettle) {
           continue;
@@ -241,7 +338,37 @@ public final class CheckpointLedger {
           continue;
         }
       }
-      if (!forceSettle && wallMillis - s.unchangedSince < settleMillis) {
+      if (writing == null) {
+        writing = writers.openForWriting();
+      }
+      Object key = fileKey(p);
+      Boolean writer = key == null ? null : writing.get(key);
+      s.sawOurWriter |= Boolean.TRUE.equals(writer);
+      if (!forceSettle && writer != null) { // anyone writing it, ours or not
+        s.unchangedSince = wallMillis; // still open for writing: a stall, not the end
+        continue;
+      }
+      if (!forceSettle && wallMillis - s.unchangedSince
+          < window(settleMillis, s.size, s.unchangedSince - s.firstMillis)) {
+        continue;
+      }
+      if (claims != null && s.sharedWith == null) {
+        // Looked at while pending, so a run that ends before this file settles still counts.
+        s.sharedWith = claims.sharedWith(p, wallMillis).orElse(null);
+      }
+      Optional<WatchClaims.Other> other = s.sawOurWriter ? Optional.empty()
+          : Optional.ofNullable(s.sharedWith);
+      if (other.isPresent()) {
+        pending.remove(p);
+        settled.put(p, now);
+        Map<String, Object> f = new LinkedHashMap<>();
+        f.put("path", p.toString());
+        f.put("other_run", other.get().runDir());
+        f.put("message", "not taking " + p + ": the live run in " + other.get().runDir()
+            + " watches the same files and no process of this run was seen writing it; give"
+            + " each run a folder of its own (checkpoints.watch: \"{run_dir}/ckpt/*.pt\" and"
+            + " the same path in the command)");
+        notices.add(new Notice("checkpoint-skipped", f));
         continue;
       }
       pending.remove(p);
@@ -317,7 +444,7 @@ public final class CheckpointLedger {
       size = s.size;
     }
     return new Entry(p, s.step, s.firstMillis, size, hash, s.train, s.validation, s.healthy,
-        kept, OK);
+        kept, OK, s.stepFrom);
   }
 
   /** A settled file changed again: if its identity is one of our links, the link changed too. */
@@ -351,17 +478,26 @@ public final class CheckpointLedger {
     notices.add(new Notice("vault-warning", f));
   }
 
-  /** The step of a file first seen now: the number in its name when plausible, else {@code step}. */
-  private long stepFor(Path p, long step) {
-    String name = p.getFileName().toString();
-    Matcher m = LAST_NUMBER.matcher(name);
-    if (m.find() && m.group(1).length() <= 18) {
-      long n = Long.parseLong(m.group(1));
-      if (n >= previousScanStep && n <= step) {
-        return n;
-      }
+  /** A checkpoint's step and where it came from. */
+  record Step(long step, String from) {}
+
+  /**
+   * The step of a file first seen now: the trainer's last reported step, or the step its name
+   * labels ({@code step-120}) when that lies between the previous scan's step and one scan
+   * interval past the current one (the trainer may have saved before we read its line). An
+   * unlabelled number ({@code epoch-001}, {@code ckpt-3}) is never taken.
+   */
+  private Step stepFor(Path p, long step) {
+    Matcher m = STEP_IN_NAME.matcher(p.getFileName().toString());
+    long named = -1;
+    while (m.find()) {
+      named = Long.parseLong(m.group(1));
     }
-    return step;
+    long ahead = step + Math.max(1, step - Math.max(previousScanStep, 0));
+    if (named >= 0 && named >= previousScanStep && named <= ahead) {
+      return new Step(named, STEP_FROM_NAME);
+    }
+    return new Step(step, step < 0 ? STEP_FROM_NONE : STEP_FROM_TRAINER);
   }
 
   private List<Path> find() throws IOException {

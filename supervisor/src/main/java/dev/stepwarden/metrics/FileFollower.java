@@ -25,7 +25,13 @@ import java.util.function.Consumer;
  *       its last unterminated line is delivered, then the new file is read from its start;</li>
  *   <li>copy-truncate (the file shrinks under us): reading restarts at offset 0;</li>
  *   <li>deletion: the open file is drained, then the follower waits for the path to reappear.</li>
+ *   <li>a rewrite of the whole file (a data frame's {@code to_csv} every epoch, in place or as a
+ *       new file renamed over the path): when the new content starts with every byte already
+ *       read, reading continues after them, so no line is delivered twice; while the rewrite is
+ *       still shorter than what was read and agrees with it, the follower waits for it.</li>
  * </ul>
+ * The bytes read are kept up to {@link #REWRITE_MEMORY} to recognise a rewrite; past that a
+ * shrunk or replaced file is read from its start as before.
  * A truncation that is refilled past the old length between two polls cannot be told from an
  * append; a short poll interval makes that unlikely. Lines follow the process layer's rules: the
  * terminator ({@code \n} or {@code \r\n}) is dropped, only the text after a bare {@code \r} is
@@ -40,6 +46,8 @@ public final class FileFollower implements AutoCloseable {
   }
 
   private static final int CHUNK = 64 * 1024;
+  /** How many bytes already read are kept to recognise a whole-file rewrite. */
+  public static final int REWRITE_MEMORY = 4 << 20;
 
   private final Path path;
   private final Duration interval;
@@ -61,6 +69,10 @@ public final class FileFollower implements AutoCloseable {
   private volatile long oversized;
   private volatile long rotations;
   private volatile long truncations;
+  private volatile long rewrites;
+  private byte[] seen = new byte[4096];
+  private int seenLen;
+  private boolean seenCapped;
   private volatile IOException lastError;
 
   /** A follower not yet started: call {@link #start()}, or {@link #poll()} from a test. */
@@ -139,14 +151,27 @@ public final class FileFollower implements AutoCloseable {
       boolean replaced = !exists || (keyNow != null && !keyNow.equals(fileKey));
       if (replaced) {
         drain();
+        Rewrite r = exists ? rewriteOf(keyNow) : Rewrite.NO;
+        if (r == Rewrite.WAIT) {
+          return (int) lines - before; // the new file is still catching up with what we read
+        }
+        if (r == Rewrite.CONTINUES) {
+          rewrites++;
+          drain(); // the rest of the new file, after the bytes already read
+          return (int) lines - before;
+        }
         flushPartial();
         closeChannel();
         if (exists) {
           rotations++;
         }
       } else if (channel.size() < position) {
+        if (agreesWithSeen(channel, channel.size())) {
+          return (int) lines - before; // rewritten in place, not yet back to where we were
+        }
         truncations++;
         position = 0;
+        forgetSeen();
         clearAcc(); // the half line we held belonged to the old content
         drain();
       } else {
@@ -161,9 +186,90 @@ public final class FileFollower implements AutoCloseable {
       }
       fileKey = keyNow;
       position = 0;
+      forgetSeen();
       drain();
     }
     return (int) lines - before;
+  }
+
+  private enum Rewrite { NO, WAIT, CONTINUES }
+
+  /**
+   * The path names a new file: a rewrite of ours when it starts with every byte already read
+   * (then it becomes the followed file, at the same position), still catching up, or not one.
+   */
+  private Rewrite rewriteOf(Object keyNow) throws IOException {
+    FileChannel fresh;
+    try {
+      fresh = FileChannel.open(path, StandardOpenOption.READ);
+    } catch (NoSuchFileException e) {
+      return Rewrite.NO;
+    }
+    boolean keep = false;
+    try {
+      long size = fresh.size();
+      if (!agreesWithSeen(fresh, Math.min(size, position))) {
+        return Rewrite.NO;
+      }
+      if (size < position) {
+        return Rewrite.WAIT;
+      }
+      channel.close();
+      channel = fresh;
+      fileKey = keyNow;
+      keep = true;
+      return Rewrite.CONTINUES;
+    } finally {
+      if (!keep) {
+        fresh.close();
+      }
+    }
+  }
+
+  /** Whether the first {@code n} bytes of {@code ch} are the first {@code n} bytes we read. */
+  private boolean agreesWithSeen(FileChannel ch, long n) throws IOException {
+    if (n > seenLen) {
+      return false; // beyond what we kept: cannot tell, read it as new
+    }
+    ByteBuffer b = ByteBuffer.allocate((int) Math.min(CHUNK, Math.max(1, n)));
+    long at = 0;
+    while (at < n) {
+      b.clear();
+      b.limit((int) Math.min(b.capacity(), n - at));
+      int got = ch.read(b, at);
+      if (got <= 0) {
+        return false;
+      }
+      if (!Arrays.equals(b.array(), 0, got, seen, (int) at, (int) at + got)) {
+        return false;
+      }
+      at += got;
+    }
+    return true;
+  }
+
+  private void remember(byte[] b, int n) {
+    if (seenCapped) {
+      return;
+    }
+    if (seenLen + n > REWRITE_MEMORY) {
+      seenCapped = true;
+      return;
+    }
+    if (seenLen + n > seen.length) {
+      seen = Arrays.copyOf(seen, Math.min(REWRITE_MEMORY, Math.max(seenLen + n,
+          seen.length * 2)));
+    }
+    System.arraycopy(b, 0, seen, seenLen, n);
+    seenLen += n;
+  }
+
+  private void forgetSeen() {
+    seenLen = 0;
+    seenCapped = false;
+    if (seen.length > 64 * 1024) {
+      seen = new byte[4096];
+    }
   }
 
   private void drain() throws IOException {
@@ -174,6 +280,7 @@ public final class FileFollower implements AutoCloseable {
         return;
       }
       position += n;
+      remember(buf.array(), n);
       split(buf.array(), n);
     }
   }
@@ -272,6 +379,11 @@ public final class FileFollower implements AutoCloseable {
   /** Times the file was found shorter than what was already read (copy-truncate). */
   public long truncations() {
     return truncations;
+  }
+
+  /** Times the file was rewritten whole and reading went on after what was already read. */
+  public long rewrites() {
+    return rewrites;
   }
 
   /** The last I/O error of the follower thread, or null once a poll succeeded again. */

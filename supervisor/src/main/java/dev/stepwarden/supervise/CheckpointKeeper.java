@@ -4,6 +4,9 @@ import dev.stepwarden.audit.AuditLog;
 import dev.stepwarden.audit.AuditRecord;
 import dev.stepwarden.checkpoints.CheckpointLedger;
 import dev.stepwarden.checkpoints.CheckpointVault;
+import dev.stepwarden.checkpoints.WatchClaims;
+import dev.stepwarden.checkpoints.WriterProbe;
+import dev.stepwarden.rules.GuardFile;
 import java.io.IOException;
 import java.nio.file.DirectoryStream;
 import java.nio.file.Files;
@@ -13,6 +16,7 @@ import java.util.List;
 import java.util.Optional;
 import java.util.Set;
 import java.util.function.Consumer;
+import java.util.function.LongSupplier;
 
 /**
  * The run's checkpoints: ledger scans (audited as they settle), the vault kept trim, and the
@@ -30,20 +34,66 @@ final class CheckpointKeeper {
   }
 
   private final CheckpointLedger ledger;
+  private final WatchClaims claims;
   private final AuditLog audit;
   private final Consumer<String> say;
 
-  /** @param ledger the run's ledger, or null without checkpoints */
-  CheckpointKeeper(CheckpointLedger ledger, AuditLog audit, Consumer<String> say) {
+  /**
+   * @param ledger the run's ledger, or null without checkpoints
+   * @param claims this run's claim on its glob among the live runs, or null (released by
+   *     {@link #close})
+   */
+  CheckpointKeeper(CheckpointLedger ledger, WatchClaims claims, AuditLog audit,
+      Consumer<String> say) {
     this.ledger = ledger;
+    this.claims = claims;
     this.audit = audit;
     this.say = say;
+  }
+
+  /**
+   * Opens the keeper of a run's {@code checkpoints} (none without them): {@code {run_dir}}
+   * filled in the glob, the glob claimed among the live runs (so two runs in one folder do not
+   * take each other's files), and a file the trainer's tree ({@code trainerPid}, -1 between
+   * launches) still holds open for writing never taken.
+   */
+  static CheckpointKeeper open(Optional<GuardFile.Checkpoints> spec, RunDirectory dir,
+      Path workdir, boolean copyVault, long settleMillis, LongSupplier trainerPid,
+      AuditLog audit, Consumer<String> say) {
+    if (spec.isEmpty()) {
+      return new CheckpointKeeper(null, null, audit, say);
+    }
+    GuardFile.Checkpoints c = spec.get();
+    CheckpointLedger l = new CheckpointLedger(workdir,
+        CheckpointLedger.fillRunDir(c.watch(), dir.root()),
+        new CheckpointVault(dir.file(RunDirectory.VAULT), c.keep(), copyVault), settleMillis);
+    WatchClaims claims = null;
+    try {
+      claims = WatchClaims.claim(l.absoluteGlob(), dir.root());
+    } catch (IOException e) {
+      say.accept("cannot register this run's checkpoint glob among the live runs ("
+          + e.getMessage() + "); another run watching the same files could not be told apart");
+    }
+    l.claims(claims);
+    l.watchWriters(WriterProbe.ofTree(trainerPid));
+    return new CheckpointKeeper(l, claims, audit, say);
   }
 
   /** Files present before the run (or the probe's): their step is unknown, never a target. */
   void baseline() throws IOException {
     if (ledger != null) {
       ledger.baseline();
+    }
+  }
+
+  /**
+   * Ignores files older than now, the run's first launch: a checkpoint moved in from elsewhere is
+   * not this run's. File times are the file system's wall clock, not the run's (test) clock;
+   * 2 s of slack for coarse time stamps.
+   */
+  void notBeforeNow() {
+    if (ledger != null) {
+      ledger.notBefore(System.currentTimeMillis() - 2_000);
     }
   }
 
@@ -64,8 +114,8 @@ final class CheckpointKeeper {
       say.accept(String.valueOf(n.fields().get("message")));
     }
     for (CheckpointLedger.Entry e : fresh) {
-      audit.append(new AuditRecord.Checkpoint(e.path().toString(), e.step(), e.size(),
-          e.sha256(), StateFile.num(e.train()), StateFile.num(e.validation()), e.healthy(),
+      audit.append(new AuditRecord.Checkpoint(e.path().toString(), e.step(), e.stepFrom(),
+          e.size(), e.sha256(), StateFile.num(e.train()), StateFile.num(e.validation()), e.healthy(),
           e.vault() == null ? null : e.vault().toString(), e.vault() == null ? null
               : ledger.vault().map(CheckpointVault::copying).orElse(false) ? "copy"
               : "hard link"));
@@ -151,6 +201,13 @@ final class CheckpointKeeper {
 
   int count() {
     return ledger == null ? 0 : ledger.entries().size();
+  }
+
+  /** Releases this run's claim on its glob (the run ended). */
+  void close() throws IOException {
+    if (claims != null) {
+      claims.close();
+    }
   }
 
   /** The ledger, for the state file (null without checkpoints). */

@@ -4,11 +4,13 @@ import dev.stepwarden.rundir.RunLock;
 import java.io.IOException;
 import java.nio.file.FileAlreadyExistsException;
 import java.nio.file.Files;
+import java.nio.file.LinkOption;
 import java.nio.file.Path;
 import java.nio.file.attribute.PosixFilePermissions;
 import java.time.Instant;
 import java.time.ZoneOffset;
 import java.time.format.DateTimeFormatter;
+import java.util.List;
 
 /**
  * The layout of a run directory: everything the next morning needs, in one place.
@@ -51,6 +53,7 @@ public final class RunDirectory {
     // The lock first: a live supervisor is named, not mistaken for a finished run.
     RunLock lock = RunLock.acquire(root);
     try {
+      refuseLinkedEntries(root); // first: a linked audit.jsonl is named as a link
       if (Files.exists(root.resolve(AUDIT))) {
         throw new FileAlreadyExistsException(root.toString(), null, "this run directory already"
             + " holds a run; choose another --run-dir, or continue it with run --resume");
@@ -61,6 +64,20 @@ public final class RunDirectory {
       throw e;
     }
     return new RunDirectory(root, lock);
+  }
+
+  /** Every file a run writes, for the check that none of them is a planted link. */
+  private static final List<String> ENTRIES = List.of(GUARDS, COMMAND, STDOUT, STDERR, METRICS,
+      AUDIT, CONTROL, STATE);
+
+  /** Refuses, before anything is written, any of the run's entries that is a link. */
+  private static void refuseLinkedEntries(Path root) throws IOException {
+    for (String name : ENTRIES) {
+      Path p = root.resolve(name);
+      if (Files.exists(p, LinkOption.NOFOLLOW_LINKS)) {
+        refuseLink(p);
+      }
+    }
   }
 
   /** Opens an existing run directory to read it (report), without taking its lock. */
@@ -75,7 +92,16 @@ public final class RunDirectory {
    */
   public static RunDirectory resumed(Path dir) throws IOException {
     Path root = dir.toAbsolutePath().normalize();
-    return new RunDirectory(root, RunLock.acquire(root));
+    createPrivateDirectories(root); // refuses a run directory that is a link
+    RunLock lock = RunLock.acquire(root);
+    try {
+      createPrivateDirectories(root.resolve(VAULT));
+      refuseLinkedEntries(root);
+    } catch (IOException | RuntimeException e) {
+      lock.close();
+      throw e;
+    }
+    return new RunDirectory(root, lock);
   }
 
   /** Releases the run's lock, if this supervisor holds it. */
@@ -93,10 +119,14 @@ public final class RunDirectory {
     return root.resolve(name);
   }
 
-  /** Creates {@code file} empty with owner-only permissions, if it does not exist yet. */
+  /**
+   * Creates {@code file} empty with owner-only permissions, if it does not exist yet. An entry
+   * of that name that is a symbolic link, a hard link (a second name of another file) or not a
+   * regular file is refused, so nothing of the run is ever written through it to another file.
+   */
   public Path privateFile(String name) throws IOException {
     Path p = root.resolve(name);
-    if (!Files.exists(p)) {
+    if (!Files.exists(p, LinkOption.NOFOLLOW_LINKS)) {
       try {
         Files.createFile(p, PosixFilePermissions.asFileAttribute(
             PosixFilePermissions.fromString("rw-------")));
@@ -104,11 +134,41 @@ public final class RunDirectory {
         Files.createFile(p);
       }
     }
+    refuseLink(p);
     return p;
   }
 
+  /** Refuses a run-directory entry that would lead our writes to another file. */
+  static void refuseLink(Path p) throws IOException {
+    if (Files.isSymbolicLink(p)) {
+      throw new FileAlreadyExistsException(p.toString(), null,
+          "is a symbolic link; stepwarden never writes a run's files through links"
+          + " (remove the link, or choose a fresh --run-dir)");
+    }
+    if (!Files.isRegularFile(p, LinkOption.NOFOLLOW_LINKS)) {
+      throw new FileAlreadyExistsException(p.toString(), null,
+          "is not a regular file (remove it, or choose a fresh --run-dir)");
+    }
+    Object links;
+    try {
+      links = Files.getAttribute(p, "unix:nlink", LinkOption.NOFOLLOW_LINKS);
+    } catch (UnsupportedOperationException | IllegalArgumentException e) {
+      return; // no link counts here (not a Unix file system)
+    }
+    if (links instanceof Integer n && n > 1) {
+      throw new FileAlreadyExistsException(p.toString(), null, "has " + n
+          + " names (a hard link to another file); stepwarden never writes a run's files"
+          + " through links (remove it, or choose a fresh --run-dir)");
+    }
+  }
+
   static void createPrivateDirectories(Path dir) throws IOException {
-    if (Files.isDirectory(dir)) {
+    if (Files.isSymbolicLink(dir)) {
+      throw new FileAlreadyExistsException(dir.toString(), null,
+          "is a symbolic link; a run directory and its vault are never reached through links"
+          + " (remove it, or choose another --run-dir)");
+    }
+    if (Files.isDirectory(dir, LinkOption.NOFOLLOW_LINKS)) {
       return;
     }
     Path parent = dir.getParent();

@@ -1,8 +1,6 @@
 package dev.stepwarden.supervise;
 
 import dev.stepwarden.audit.AuditLog;
-import dev.stepwarden.checkpoints.CheckpointLedger;
-import dev.stepwarden.checkpoints.CheckpointVault;
 import dev.stepwarden.control.ControlFile;
 import dev.stepwarden.engine.GuardEngine;
 import dev.stepwarden.rules.GuardFile;
@@ -10,6 +8,7 @@ import java.io.IOException;
 import java.nio.file.Path;
 import java.time.Clock;
 import java.util.function.Consumer;
+import java.util.function.LongSupplier;
 
 /**
  * The parts of one run over its run directory, opened together in one order: the audit log
@@ -27,7 +26,7 @@ record RunParts(AuditLog audit, Steering steering, SamplePath path, CheckpointKe
 
   static RunParts open(RunDirectory dir, Path workdir, GuardFile rules,
       RunOptions options, Object lock, GuardEngine engine, long controlRevision,
-      Reactions to, Consumer<String> say) throws IOException {
+      Reactions to, LongSupplier trainerPid, Consumer<String> say) throws IOException {
     Clock clock = options.clock();
     AuditLog audit = AuditLog.open(dir.privateFile(RunDirectory.AUDIT), clock);
     ControlFile control = new ControlFile(dir.file(RunDirectory.CONTROL), controlRevision);
@@ -36,10 +35,8 @@ record RunParts(AuditLog audit, Steering steering, SamplePath path, CheckpointKe
         NormalizedWriter.append(dir.privateFile(RunDirectory.METRICS)), audit,
         options.observer(), m -> options.console().println("stepwarden: warning: " + m));
     path.engine(engine);
-    CheckpointKeeper keeper = new CheckpointKeeper(rules.checkpoints().map(k ->
-        new CheckpointLedger(workdir, k.watch(), new CheckpointVault(
-            dir.file(RunDirectory.VAULT), k.keep(), options.copyVault()), SETTLE_MILLIS))
-        .orElse(null), audit, say);
+    CheckpointKeeper keeper = CheckpointKeeper.open(rules.checkpoints(), dir, workdir,
+        options.copyVault(), SETTLE_MILLIS, trainerPid, audit, say);
     Launcher launcher = new Launcher(dir, rules, workdir, options.quiet(), control.path());
     PeriodicWork periodic = new PeriodicWork(lock, clock, path, keeper, steering,
         rules.limits(), audit, say, to);

@@ -132,6 +132,7 @@ final class StateFile {
     m.put("healthy", e.healthy());
     m.put("vault", e.vault() == null ? null : e.vault().toString());
     m.put("state", e.state());
+    m.put("step_from", e.stepFrom());
     return m;
   }
 
@@ -141,7 +142,8 @@ final class StateFile {
         n.path("wall_millis").asLong(), n.path("size").asLong(), n.path("sha256").asString(),
         dbl(n.get("train")), dbl(n.get("validation")), n.path("healthy").asBoolean(),
         v.isNull() || v.isMissingNode() ? null : Path.of(v.asString()),
-        n.path("state").asString(CheckpointLedger.OK));
+        n.path("state").asString(CheckpointLedger.OK),
+        n.path("step_from").asString(CheckpointLedger.STEP_FROM_TRAINER));
   }
 
   static Map<String, Object> seen(CheckpointLedger.Seen s) {

@@ -299,6 +299,7 @@ public final class Supervisor {
     engine = new GuardEngine(rules);
     openParts(0);
     keeper.baseline(); // an earlier run's files: their step is unknown
+    keeper.notBeforeNow(); // nor is a file older than the first launch this run's
     audit.append(new AuditRecord.RunStart(rules.run().name(), rules.run().command(),
         workdir.toString(), rules.source() == null ? null : rules.source().toString(),
         dir.root().toString(), engine.rate(),
@@ -311,7 +312,8 @@ public final class Supervisor {
     dir = RunDirectory.resumed(options.runDir());
     workdir = rules.run().workdir() == null ? Path.of("").toAbsolutePath()
         : rules.run().workdir().toAbsolutePath();
-    long tornBytes = Resumption.cutTornAuditTail(dir.file(RunDirectory.AUDIT));
+    long tornBytes = Resumption.cutTornAuditTail(
+        dir.privateFile(RunDirectory.AUDIT)); // never through a link
     engine = new GuardEngine(rules);
     engine.restore(StateFile.engine(st.path("engine")));
     openParts(st.path("control_revision").asLong());
@@ -327,7 +329,7 @@ public final class Supervisor {
   private void openParts(long controlRevision) throws IOException {
     synchronized (lock) { // a signal handler sees all of them or none
       parts = RunParts.open(dir, workdir, rules, options, lock, engine, controlRevision,
-          new Reactions(), this::say);
+          new Reactions(), this::trainerPid, this::say);
       audit = parts.audit();
       steering = parts.steering();
       keeper = parts.keeper();
@@ -697,6 +699,12 @@ public final class Supervisor {
     periodic.stateSaved();
   }
 
+  /** The live trainer's pid for the checkpoint writer probe; -1 between launches. */
+  private long trainerPid() {
+    TrainerProcess t = trainer;
+    return t == null ? -1 : t.pid();
+  }
+
   private void say(String message) {
     if (!options.quiet()) {
       options.console().println("stepwarden: " + message);
@@ -717,6 +725,9 @@ public final class Supervisor {
       options.console().println("stepwarden: " + e.getMessage());
     }
     try {
+      if (keeper != null) {
+        keeper.close(); // this run's glob is no longer claimed among the live runs
+      }
       if (dir != null) {
         dir.release(); // last: the run's files are complete before another supervisor may come
       }
