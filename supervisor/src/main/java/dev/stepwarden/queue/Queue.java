@@ -308,7 +308,7 @@ public final class Queue implements AutoCloseable {
   /** One priority's stretch of due times: 2^34 ms of the time axis (about 199 days). */
   private static final long DUE_SPAN_MS = 1L << 34;
   /** Adding order within a priority, in steps of 100 ms: the stretch holds some 54 years. */
-  private static final long ORDER_STEP_MS = 100;
+  static final long ORDER_STEP_MS = 100;
   private static final long ADDED_ORIGIN_MS = Instant.parse("2026-01-01T00:00:00Z")
       .toEpochMilli();
 

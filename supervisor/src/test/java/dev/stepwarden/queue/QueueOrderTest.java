@@ -65,9 +65,14 @@ class QueueOrderTest {
             .as("the blocker runs:\n" + console).isTrue();
         // while the only slot is busy: a low one now, an --at one whose time passes while it
         // waits, then a high and a middle one
+        // (the queue orders one priority's jobs by adding time to 100 ms: jobs added closer
+        // together tie, so each add here waits out one step)
         String low = add(q, quick, "low", 1, null, null);
+        Thread.sleep(Queue.ORDER_STEP_MS + 50);
         String at = add(q, quick, "at", 9, Instant.now().plusMillis(1500), null);
+        Thread.sleep(Queue.ORDER_STEP_MS + 50);
         String high = add(q, quick, "high", 9, null, null);
+        Thread.sleep(Queue.ORDER_STEP_MS + 50);
         String mid = add(q, quick, "mid", 5, null, null);
         assertThat(allEnded(q, 5)).as("all end:\n" + console).isTrue();
         assertThat(startOrder(events)).containsExactly(blocker, at, high, mid, low);
